@@ -1,0 +1,434 @@
+"""Numba kernels: DC operating point and transient of a flattened bus.
+
+Private kernels on flat arrays (see :mod:`budget.netlist` for the layout).
+They never raise on bad physics: they return integer status codes
+(``STATUS_*``) and the wrappers in :mod:`budget.simulate` explain them.
+
+Method
+------
+- Lines: method of characteristics (F. H. Branin, "Transient analysis of
+  lossless transmission lines", Proc. IEEE 55(11), 1967, pp. 2012-2013).  At
+  end k of a line with partner end m, i_k(t) = v_k(t)/Z0 - h_k(t) with
+  h_k(t) = v_m(t-TD)/Z0 + i_m(t-TD) = w_m(t-TD), w = 2 v/Z0 - h.  TD is not a
+  multiple of the step: w is interpolated linearly between stored samples.
+- L and C: trapezoidal companions (H. W. Dommel, "Digital computer solution
+  of electromagnetic transients in single- and multiphase networks", IEEE
+  Trans. PAS-88(4), 1969): C -> conductance 2C/dt with history J = Gc v + i;
+  L -> conductance dt/2L with history J = i + Gl u.
+- Within one step the lines couple nodes only through delayed history, so the
+  nodal system splits into small clusters joined by lumped series elements;
+  each cluster matrix is inverted once, and a step costs O(nodes).  The
+  driver's time-varying conductance is a rank-1 change to its own cluster,
+  applied with the Sherman-Morrison formula.
+- DC: lines and inductors are shorts, capacitors open.  Shorted nodes are
+  merged; the remaining conductance matrix is banded (RCM ordering) and solved
+  by a banded Cholesky factorisation; the currents in the shorts (needed for
+  the lines' and inductors' initial history) follow from Kirchhoff's current
+  law along a spanning forest of the shorts, leaves first.
+
+Arrays holding per-variant values are ``[item, B]`` with the variant axis
+innermost, so each step's arithmetic runs over B variants in simple loops.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..jit import kernel
+
+STATUS_OK = 0
+STATUS_DC_SINGULAR = 1        # a part of the network has no DC path to ground
+STATUS_CLUSTER_SINGULAR = 2   # a lumped cluster matrix could not be inverted
+STATUS_NOT_FINITE = 3         # the transient produced inf/nan
+
+
+@kernel
+def dc_state(b, v_state, r_state, n_nodes, res_a, res_b, src_node, drv_node, dc_map, n_dc, bw,
+             tree_kind, tree_elem, tree_child, tree_parent, line_a, ind_a,
+             res_r, src_r, src_v, v_out, line_i, ind_i, band, rhs, acc):
+    """DC operating point of variant ``b`` with the driver at (v_state [V], r_state [ohm]).
+
+    Fills v_out[node] [V], line_i[k] (current into line k at its end a) [A]
+    and ind_i[k] (current a -> b) [A].  Returns a STATUS_* code.
+    """
+    w = bw + 1
+    for i in range(n_dc * w):
+        band[i] = 0.0
+    for i in range(n_dc):
+        rhs[i] = 0.0
+    # conductance stamps on merged nodes (lower band stored: band[i*w + (i-j)] = A[i, j])
+    for k in range(res_a.shape[0]):
+        g = 1.0 / res_r[k, b]
+        i = dc_map[res_a[k]]
+        band[i * w] += g
+        if res_b[k] >= 0:
+            j = dc_map[res_b[k]]
+            if i == j:
+                band[i * w] -= g
+                continue
+            band[j * w] += g
+            if i > j:
+                band[i * w + (i - j)] -= g
+            else:
+                band[j * w + (j - i)] -= g
+    for k in range(src_node.shape[0]):
+        i = dc_map[src_node[k]]
+        band[i * w] += 1.0 / src_r[k, b]
+        rhs[i] += src_v[k, b] / src_r[k, b]
+    i = dc_map[drv_node]
+    band[i * w] += 1.0 / r_state
+    rhs[i] += v_state / r_state
+    # banded Cholesky, in place
+    for j in range(n_dc):
+        for i in range(j, min(n_dc, j + w)):
+            s = band[i * w + (i - j)]
+            for k in range(max(0, i - bw), j):
+                s -= band[i * w + (i - k)] * band[j * w + (j - k)]
+            if i == j:
+                if not s > 0.0:
+                    return STATUS_DC_SINGULAR
+                band[j * w] = math.sqrt(s)
+            else:
+                band[i * w + (i - j)] = s / band[j * w]
+    for i in range(n_dc):
+        s = rhs[i]
+        for k in range(max(0, i - bw), i):
+            s -= band[i * w + (i - k)] * rhs[k]
+        rhs[i] = s / band[i * w]
+    for i in range(n_dc - 1, -1, -1):
+        s = rhs[i]
+        for k in range(i + 1, min(n_dc, i + w)):
+            s -= band[k * w + (k - i)] * rhs[k]
+        rhs[i] = s / band[i * w]
+    for n in range(n_nodes):
+        v_out[n] = rhs[dc_map[n]]
+    # currents leaving each node through resistive elements
+    for n in range(n_nodes):
+        acc[n] = 0.0
+    for k in range(res_a.shape[0]):
+        a = res_a[k]
+        vb = 0.0 if res_b[k] < 0 else v_out[res_b[k]]
+        i_r = (v_out[a] - vb) / res_r[k, b]
+        acc[a] += i_r
+        if res_b[k] >= 0:
+            acc[res_b[k]] -= i_r
+    for k in range(src_node.shape[0]):
+        n = src_node[k]
+        acc[n] += (v_out[n] - src_v[k, b]) / src_r[k, b]
+    acc[drv_node] += (v_out[drv_node] - v_state) / r_state
+    # currents in the shorts, leaves first
+    for k in range(line_i.shape[0]):
+        line_i[k] = 0.0
+    for k in range(ind_i.shape[0]):
+        ind_i[k] = 0.0
+    for e in range(tree_kind.shape[0]):
+        u = tree_child[e]
+        p = tree_parent[e]
+        cur = acc[u]  # flows from p into u through the short
+        acc[p] += cur
+        k = tree_elem[e]
+        if tree_kind[e] == 0:
+            line_i[k] = cur if line_a[k] == p else -cur
+        else:
+            ind_i[k] = cur if ind_a[k] == p else -cur
+    return STATUS_OK
+
+
+@kernel
+def _invert(a, m, out):
+    """Invert the m x m matrix a (row-major, destroyed) into out; False if singular."""
+    for i in range(m):
+        for j in range(m):
+            out[i * m + j] = 1.0 if i == j else 0.0
+    for c in range(m):
+        p = c
+        best = abs(a[c * m + c])
+        for r in range(c + 1, m):
+            if abs(a[r * m + c]) > best:
+                best = abs(a[r * m + c])
+                p = r
+        if not best > 0.0:
+            return False
+        if p != c:
+            for j in range(m):
+                t = a[c * m + j]
+                a[c * m + j] = a[p * m + j]
+                a[p * m + j] = t
+                t = out[c * m + j]
+                out[c * m + j] = out[p * m + j]
+                out[p * m + j] = t
+        d = a[c * m + c]
+        for j in range(m):
+            a[c * m + j] /= d
+            out[c * m + j] /= d
+        for r in range(m):
+            if r != c:
+                f = a[r * m + c]
+                if f != 0.0:
+                    for j in range(m):
+                        a[r * m + j] -= f * a[c * m + j]
+                        out[r * m + j] -= f * out[c * m + j]
+    return True
+
+
+@kernel
+def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
+              ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
+              tree_kind, tree_elem, tree_child, tree_parent, ring_len,
+              line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
+              drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps,
+              wave_out, dc_out, status):
+    """Simulate variants b0 .. b0+B-1 of one flattened bus (values are ``[item, N]``).
+
+    Writes pin waveforms wave_out[step, out, b] [V] when wave_out has n_steps
+    rows (else records nothing), the DC node voltages of the start and end
+    states into dc_out[0 or 1, node, b] [V], and a STATUS_* per variant into
+    status[b].
+    """
+    nl = line_a.shape[0]
+    nr = res_a.shape[0]
+    nc = cap_a.shape[0]
+    ni = ind_a.shape[0]
+    ns = src_node.shape[0]
+    n_cl = cl_start.shape[0] - 1
+    record = wave_out.shape[0] == n_steps
+
+    # ---- per-variant scratch -------------------------------------------------
+    vdc = np.empty(n_nodes)
+    li = np.empty(nl)
+    ii = np.empty(ni)
+    band = np.empty(max(1, n_dc * (dc_bw + 1)))
+    rhs_dc = np.empty(max(1, n_dc))
+    acc = np.empty(n_nodes)
+    mmax = 1
+    for c in range(n_cl):
+        mmax = max(mmax, cl_start[c + 1] - cl_start[c])
+    amat = np.empty(mmax * mmax)
+    ainv = np.empty(mmax * mmax)
+
+    # ---- block state, variant axis innermost ----------------------------------
+    ring_off = np.zeros(nl + 1, dtype=np.int64)
+    for k in range(nl):
+        ring_off[k + 1] = ring_off[k] + 2 * ring_len[k]
+    ring = np.empty((ring_off[nl], B))
+    q = np.empty((nl, B), dtype=np.int64)
+    fr = np.empty((nl, B))
+    gz = np.empty((nl, B))
+    inv = np.empty((cl_moff[n_cl], B))
+    g_cap = np.empty((nc, B))
+    j_cap = np.empty((nc, B))
+    g_ind = np.empty((ni, B))
+    j_ind = np.empty((ni, B))
+    rhs0 = np.zeros((n_nodes, B))
+    rhs = np.empty((n_nodes, B))
+    v = np.empty((n_nodes, B))
+    ha = np.empty((nl, B))
+    hb = np.empty((nl, B))
+    drv_cl = 0
+    for c in range(n_cl):
+        if cl_start[c] <= drv_node < cl_start[c + 1]:
+            drv_cl = c
+    m_d = cl_start[drv_cl + 1] - cl_start[drv_cl]
+    l_d = drv_node - cl_start[drv_cl]
+    off_d = cl_moff[drv_cl]
+
+    for bb in range(B):
+        b = b0 + bb
+        status[b] = STATUS_OK
+        # DC of the end state (for levels), then of the start state (initial conditions)
+        st = dc_state(b, drv_v1[b], drv_r1[b], n_nodes, res_a, res_b, src_node, drv_node, dc_map, n_dc,
+                      dc_bw, tree_kind, tree_elem, tree_child, tree_parent, line_a, ind_a,
+                      res_r, src_r, src_v, vdc, li, ii, band, rhs_dc, acc)
+        for n in range(n_nodes):
+            dc_out[1, n, b] = vdc[n]
+        st2 = dc_state(b, drv_v0[b], drv_r0[b], n_nodes, res_a, res_b, src_node, drv_node, dc_map, n_dc,
+                       dc_bw, tree_kind, tree_elem, tree_child, tree_parent, line_a, ind_a,
+                       res_r, src_r, src_v, vdc, li, ii, band, rhs_dc, acc)
+        for n in range(n_nodes):
+            dc_out[0, n, b] = vdc[n]
+            v[n, bb] = vdc[n]
+        if st != STATUS_OK or st2 != STATUS_OK:
+            status[b] = STATUS_DC_SINGULAR
+        # lines: delays as whole steps + fraction, history filled with the DC state
+        for k in range(nl):
+            z = line_z0[k, b]
+            gz[k, bb] = 1.0 / z
+            x = line_td[k, b] / dt
+            qi = int(math.floor(x + 1e-9))
+            if qi < 1:
+                qi = 1
+            q[k, bb] = qi
+            fr[k, bb] = max(0.0, x - qi)
+            wa = vdc[line_a[k]] / z + li[k]
+            wb = vdc[line_b[k]] / z - li[k]
+            o = ring_off[k]
+            for s in range(ring_len[k]):
+                ring[o + s, bb] = wa
+                ring[o + ring_len[k] + s, bb] = wb
+        for k in range(nc):
+            g_cap[k, bb] = 2.0 * cap_c[k, b] / dt
+            u = vdc[cap_a[k]] - (vdc[cap_b[k]] if cap_b[k] >= 0 else 0.0)
+            j_cap[k, bb] = g_cap[k, bb] * u
+        for k in range(ni):
+            g_ind[k, bb] = dt / (2.0 * ind_l[k, b])
+            j_ind[k, bb] = ii[k]
+        for k in range(ns):
+            rhs0[src_node[k], bb] += src_v[k, b] / src_r[k, b]
+        # cluster matrices (driver at its start-state conductance), inverted once
+        for c in range(n_cl):
+            s0 = cl_start[c]
+            m = cl_start[c + 1] - s0
+            for i in range(m * m):
+                amat[i] = 0.0
+            for k in range(nl):
+                if s0 <= line_a[k] < s0 + m:
+                    amat[(line_a[k] - s0) * (m + 1)] += gz[k, bb]
+                if s0 <= line_b[k] < s0 + m:
+                    amat[(line_b[k] - s0) * (m + 1)] += gz[k, bb]
+            for k in range(nr):
+                if s0 <= res_a[k] < s0 + m:
+                    g = 1.0 / res_r[k, b]
+                    ia = res_a[k] - s0
+                    amat[ia * (m + 1)] += g
+                    if res_b[k] >= 0:
+                        ib = res_b[k] - s0
+                        amat[ib * (m + 1)] += g
+                        amat[ia * m + ib] -= g
+                        amat[ib * m + ia] -= g
+            for k in range(nc):
+                if s0 <= cap_a[k] < s0 + m:
+                    g = g_cap[k, bb]
+                    ia = cap_a[k] - s0
+                    amat[ia * (m + 1)] += g
+                    if cap_b[k] >= 0:
+                        ib = cap_b[k] - s0
+                        amat[ib * (m + 1)] += g
+                        amat[ia * m + ib] -= g
+                        amat[ib * m + ia] -= g
+            for k in range(ni):
+                if s0 <= ind_a[k] < s0 + m:
+                    g = g_ind[k, bb]
+                    ia = ind_a[k] - s0
+                    ib = ind_b[k] - s0
+                    amat[ia * (m + 1)] += g
+                    amat[ib * (m + 1)] += g
+                    amat[ia * m + ib] -= g
+                    amat[ib * m + ia] -= g
+            for k in range(ns):
+                if s0 <= src_node[k] < s0 + m:
+                    amat[(src_node[k] - s0) * (m + 1)] += 1.0 / src_r[k, b]
+            if c == drv_cl:
+                amat[l_d * (m + 1)] += 1.0 / drv_r0[b]
+            if not _invert(amat, m, ainv):
+                status[b] = STATUS_CLUSTER_SINGULAR
+            o = cl_moff[c]
+            for i in range(m * m):
+                inv[o + i, bb] = ainv[i]
+
+    if record:
+        for o in range(out_node.shape[0]):
+            for bb in range(B):
+                wave_out[0, o, b0 + bb] = v[out_node[o], bb]
+
+    # ---- time loop ---------------------------------------------------------------
+    for step in range(1, n_steps):
+        t = step * dt
+        # line histories from the partner end, delayed and interpolated
+        for k in range(nl):
+            o = ring_off[k]
+            r = ring_len[k]
+            for bb in range(B):
+                s0 = (step - q[k, bb]) % r
+                s1 = (step - q[k, bb] - 1) % r
+                f = fr[k, bb]
+                hb[k, bb] = (1.0 - f) * ring[o + s0, bb] + f * ring[o + s1, bb]
+                ha[k, bb] = (1.0 - f) * ring[o + r + s0, bb] + f * ring[o + r + s1, bb]
+        for n in range(n_nodes):
+            for bb in range(B):
+                rhs[n, bb] = rhs0[n, bb]
+        for k in range(nl):
+            a = line_a[k]
+            c = line_b[k]
+            for bb in range(B):
+                rhs[a, bb] += ha[k, bb]
+                rhs[c, bb] += hb[k, bb]
+        for k in range(nc):
+            a = cap_a[k]
+            c = cap_b[k]
+            for bb in range(B):
+                rhs[a, bb] += j_cap[k, bb]
+            if c >= 0:
+                for bb in range(B):
+                    rhs[c, bb] -= j_cap[k, bb]
+        for k in range(ni):
+            a = ind_a[k]
+            c = ind_b[k]
+            for bb in range(B):
+                rhs[a, bb] -= j_ind[k, bb]
+                rhs[c, bb] += j_ind[k, bb]
+        # driver: Norton blend of the two states over the linear ramp
+        for bb in range(B):
+            b = b0 + bb
+            s = t / t_ramp[b]
+            if s > 1.0:
+                s = 1.0
+            rhs[drv_node, bb] += (1.0 - s) * drv_v0[b] / drv_r0[b] + s * drv_v1[b] / drv_r1[b]
+        # cluster solves
+        for c in range(n_cl):
+            s0 = cl_start[c]
+            m = cl_start[c + 1] - s0
+            o = cl_moff[c]
+            for i in range(m):
+                for bb in range(B):
+                    v[s0 + i, bb] = 0.0
+                for j in range(m):
+                    for bb in range(B):
+                        v[s0 + i, bb] += inv[o + i * m + j, bb] * rhs[s0 + j, bb]
+        # Sherman-Morrison for the driver's conductance change g = G(t) - G(0)
+        s0 = cl_start[drv_cl]
+        for bb in range(B):
+            b = b0 + bb
+            s = t / t_ramp[b]
+            if s > 1.0:
+                s = 1.0
+            g = (1.0 - s) / drv_r0[b] + s / drv_r1[b] - 1.0 / drv_r0[b]
+            if g != 0.0:
+                scale = g * v[drv_node, bb] / (1.0 + g * inv[off_d + l_d * m_d + l_d, bb])
+                for i in range(m_d):
+                    v[s0 + i, bb] -= inv[off_d + i * m_d + l_d, bb] * scale
+        # history updates
+        slot = step
+        for k in range(nl):
+            o = ring_off[k]
+            r = ring_len[k]
+            sl = slot % r
+            a = line_a[k]
+            c = line_b[k]
+            for bb in range(B):
+                ring[o + sl, bb] = 2.0 * v[a, bb] * gz[k, bb] - ha[k, bb]
+                ring[o + r + sl, bb] = 2.0 * v[c, bb] * gz[k, bb] - hb[k, bb]
+        for k in range(nc):
+            a = cap_a[k]
+            c = cap_b[k]
+            for bb in range(B):
+                u = v[a, bb] - (v[c, bb] if c >= 0 else 0.0)
+                j_cap[k, bb] = 2.0 * g_cap[k, bb] * u - j_cap[k, bb]
+        for k in range(ni):
+            a = ind_a[k]
+            c = ind_b[k]
+            for bb in range(B):
+                u = v[a, bb] - v[c, bb]
+                j_ind[k, bb] = j_ind[k, bb] + 2.0 * g_ind[k, bb] * u
+        if record:
+            for o in range(out_node.shape[0]):
+                n = out_node[o]
+                for bb in range(B):
+                    wave_out[step, o, b0 + bb] = v[n, bb]
+
+    for bb in range(B):
+        b = b0 + bb
+        for o in range(out_node.shape[0]):
+            if record and not math.isfinite(wave_out[n_steps - 1, o, b]):
+                status[b] = STATUS_NOT_FINITE
+    return 0

@@ -1,0 +1,459 @@
+"""Flattening a design, for one driving tap and one edge, into the flat arrays the kernels take.
+
+Every device sits as (a contract): bus node -- stub line (optional) -- series
+termination R (optional) -- pad -- package inductance (optional) -- die.  The
+die node carries c_pin and r_in; the driver acts on the die node.
+
+Elements of the flat netlist:
+
+- ``line``: a lossless line section solved by the method of characteristics
+  (Branin 1967): each end is a conductance 1/z0 with a history current
+  delayed by the one-way delay ``td`` (which must be >= the time step).
+- ``res``, ``cap``, ``ind``: lumped R, C and L (node b = -1 means ground).
+- ``src``: a Norton source, resistance r to a fixed voltage v.
+- the driver: on its die node, the Norton blend of its two states.
+
+Lines with series loss are split into sections, with the section resistance
+lumped between them (R/(2n) at both ends of every section).  Lines shorter
+than the time step become a lumped pi (C/2, L, C/2) instead of forcing a tiny
+step; :attr:`Netlist.notes` says which.
+
+All values may be numpy arrays over a batch of variants (see
+:meth:`budget.Design.with_values`); structural choices (lumped or not, number
+of sections, ring lengths) are made once for the whole batch.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import ArgumentError, DesignError
+from .model import Design
+
+EDGES = ("rise", "fall")
+
+# -- accuracy policy of the automatic time step --------------------------------
+# samples across the 0-100 % ramp; 10-90 % rise / 0.8 = 0-100 % ramp (linear ramp geometry)
+STEPS_PER_RAMP = 40
+# samples per period of the fastest L-C resonance (trapezoidal frequency warping
+# error ~ (w dt)^2/12, below 0.4 % at 32 samples per period)
+STEPS_PER_LC_PERIOD = 32
+# lumped series loss: sections such that each lumped piece reflects < 0.25 % of a wave,
+# i.e. R_section/(4 z0) <= 0.0025
+LOSS_SECTION_FRACTION = 0.01
+
+
+def ramp_time(design: Design, edge: str):
+    """0-100 % duration [s] of the driver's linear ramp for ``edge`` (= 10-90 % time / 0.8)."""
+    t = design.edge.rise if edge == "rise" else design.edge.fall
+    return np.asarray(t, dtype=float) / 0.8
+
+
+@dataclass
+class Netlist:
+    """Flat arrays of one bus for one driver and one edge (see module docstring).
+
+    Structure arrays are int64; value arrays are float64 of shape
+    ``[n_items, n_variants]``.  Node numbers are grouped so that each cluster
+    (nodes joined by lumped series elements) is contiguous:
+    ``cl_start[c]:cl_start[c+1]``.
+    """
+    n_nodes: int
+    node_names: list
+    cl_start: np.ndarray
+    cl_moff: np.ndarray
+    line_a: np.ndarray
+    line_b: np.ndarray
+    res_a: np.ndarray
+    res_b: np.ndarray
+    cap_a: np.ndarray
+    cap_b: np.ndarray
+    ind_a: np.ndarray
+    ind_b: np.ndarray
+    src_node: np.ndarray
+    drv_node: int
+    out_node: np.ndarray
+    dc_map: np.ndarray
+    n_dc: int
+    dc_bw: int
+    tree_kind: np.ndarray
+    tree_elem: np.ndarray
+    tree_child: np.ndarray
+    tree_parent: np.ndarray
+    ring_len: np.ndarray
+    # values
+    line_z0: np.ndarray
+    line_td: np.ndarray
+    res_r: np.ndarray
+    cap_c: np.ndarray
+    ind_l: np.ndarray
+    src_r: np.ndarray
+    src_v: np.ndarray
+    drv_v0: np.ndarray
+    drv_v1: np.ndarray
+    drv_r0: np.ndarray
+    drv_r1: np.ndarray
+    t_ramp: np.ndarray
+    dt: float
+    n_steps: int
+    n_variants: int
+    taps: tuple
+    driver: str
+    edge: str
+    notes: list = field(default_factory=list)
+
+    @property
+    def t(self) -> np.ndarray:
+        """Time axis [s]: t = 0 is the start of the driver's ramp."""
+        return np.arange(self.n_steps) * self.dt
+
+
+class _Builder:
+    def __init__(self, n):
+        self.n = n  # variants
+        self.names = []
+        self.index = {}
+        self.lines, self.res, self.caps, self.inds, self.srcs = [], [], [], [], []
+
+    def node(self, name):
+        if name not in self.index:
+            self.index[name] = len(self.names)
+            self.names.append(name)
+        return self.index[name]
+
+    def v(self, x):
+        return np.broadcast_to(np.asarray(x, dtype=float), (self.n,))
+
+    def line(self, a, b, z0, td):
+        self.lines.append((a, b, self.v(z0), self.v(td)))
+
+    def r(self, a, b, r):
+        self.res.append((a, b, self.v(r)))
+
+    def c(self, a, b, c):
+        self.caps.append((a, b, self.v(c)))
+
+    def l(self, a, b, l):  # noqa: E743
+        self.inds.append((a, b, self.v(l)))
+
+    def src(self, a, r, v):
+        self.srcs.append((a, self.v(r), self.v(v)))
+
+
+def _vmax(x):
+    return float(np.max(x))
+
+
+def _vmin(x):
+    return float(np.min(x))
+
+
+def choose_dt(design: Design, edge: str) -> float:
+    """Automatic time step [s] for ``edge`` (or the design's ``bus.dt``).
+
+    The step resolves the driver's ramp (STEPS_PER_RAMP samples over its 0-100 %
+    time) and the fastest package-inductance resonance (STEPS_PER_LC_PERIOD
+    samples a period).  Lines do not limit it: shorter lines are lumped.
+    """
+    if design.bus.dt is not None:
+        return _vmin(design.bus.dt)
+    dt = _vmin(ramp_time(design, edge)) / STEPS_PER_RAMP
+    for tap in design.taps:
+        part = design.parts[tap.part]
+        l_pkg, c_pin = np.asarray(part.l_pkg), np.asarray(part.c_pin)
+        if _vmax(l_pkg) > 0 and _vmax(c_pin) > 0:
+            period = 2 * math.pi * math.sqrt(_vmin(l_pkg) * max(_vmin(c_pin), 1e-18))
+            dt = min(dt, period / STEPS_PER_LC_PERIOD)
+    return dt
+
+
+def default_t_stop(design: Design, edge: str) -> float:
+    """Simulation window [s] when the design gives none.
+
+    Two ramp times plus twelve times the sum of every line's delay (an upper
+    bound on the longest path, so at least six round trips of any path)
+    plus ten time constants of the slowest RC termination; at least 10 ns.
+    """
+    total_td = 0.0
+    for s in design.segments:
+        total_td += _vmax(np.asarray(design.lines[s.line].delay) * s.length)
+    for t in design.taps:
+        if t.stub is not None:
+            total_td += _vmax(np.asarray(design.lines[t.stub.line].delay) * t.stub.length)
+    tau = 0.0
+    for term in design.terminations:
+        if term.type == "rc":
+            tau = max(tau, _vmax(np.asarray(term.r) * term.c))
+    return max(2 * _vmax(ramp_time(design, edge)) + 12 * total_td + 10 * tau, 10e-9)
+
+
+def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
+            t_stop: float | None = None) -> Netlist:
+    """Flatten ``design`` with tap ``driver`` driving an ``edge`` ("rise" or "fall").
+
+    dt [s] and t_stop [s] override the design's own and the automatic choice.
+    """
+    if edge not in EDGES:
+        raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {edge!r}")
+    dtap = design.tap(driver)
+    dpart = design.parts[dtap.part]
+    if not dpart.can_drive:
+        raise ArgumentError(f"tap {driver!r} uses part {dpart.name!r} whose role is {dpart.role!r}; "
+                            f"taps that can drive: {', '.join(design.drivers) or 'none'}")
+    n = design.batch_size or 1
+    dt = float(dt if dt is not None else choose_dt(design, edge))
+    if t_stop is None:
+        t_stop = design.bus.t_stop if design.bus.t_stop is not None else default_t_stop(design, edge)
+    t_stop = _vmax(t_stop)
+    if not (dt > 0 and t_stop > dt):
+        raise ArgumentError(f"need 0 < dt < t_stop, got dt={dt:g} s, t_stop={t_stop:g} s")
+    n_steps = int(math.floor(t_stop / dt + 1e-9)) + 1
+    if n_steps > 20_000_000:
+        raise ArgumentError(f"{n_steps} time steps (t_stop {t_stop:g} s / dt {dt:g} s) is too many; "
+                            "shorten bus.t_stop or lengthen bus.dt")
+
+    b = _Builder(n)
+    notes = []
+    for name in design.nodes:
+        b.node(name)
+
+    def add_line(a, bnode, line_name, length, label):
+        lt = design.lines[line_name]
+        z0 = np.asarray(lt.z0, dtype=float)
+        td = np.asarray(lt.delay, dtype=float) * length
+        r_tot = np.asarray(lt.r_dc, dtype=float) * length
+        lossy = _vmax(r_tot) > 0
+        if lossy and _vmin(r_tot) <= 0:
+            raise DesignError("r_dc is zero in some variants and positive in others; give it a small "
+                              "positive minimum", source=design.source, table=f"lines.{line_name}", key="r_dc")
+        if _vmin(td) < dt * (1 - 1e-9):
+            # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (REFERENCES B1).
+            notes.append(f"{label}: delay {_vmin(td) * 1e12:.3g} ps is below the time step "
+                         f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2)")
+            b.c(a, -1, td / z0 / 2)
+            b.c(bnode, -1, td / z0 / 2)
+            if lossy:
+                mid = b.node(f"{label}:mid")
+                b.r(a, mid, r_tot)
+                b.l(mid, bnode, z0 * td)
+            else:
+                b.l(a, bnode, z0 * td)
+            return
+        if not lossy:
+            b.line(a, bnode, z0, td)
+            return
+        # Series loss lumped between lossless sections: R/(2n) | td/n | R/n | ... | td/n | R/(2n).
+        want = math.ceil(_vmax(r_tot / z0) / LOSS_SECTION_FRACTION)
+        n_sec = max(1, min(want, int(_vmin(td) / dt * (1 + 1e-9)), 64))
+        if n_sec < want:
+            notes.append(f"{label}: series loss lumped in {n_sec} sections (accuracy would like {want}); "
+                         "expect up to "
+                         f"{100 * _vmax(r_tot / z0) / n_sec / 4:.2g} % of a wave in spurious reflections")
+        prev = a
+        for k in range(n_sec):
+            x = b.node(f"{label}:s{k}a")
+            y = b.node(f"{label}:s{k}b")
+            b.r(prev, x, r_tot / n_sec / (2 if k == 0 else 1))
+            b.line(x, y, z0, td / n_sec)
+            prev = y
+        b.r(prev, bnode, r_tot / n_sec / 2)
+
+    for s in design.segments:
+        add_line(b.node(s.a), b.node(s.b), s.line, s.length, f"segment #{s.index + 1} ({s.a}-{s.b})")
+
+    series = {t.tap: t for t in design.terminations if t.type == "series"}
+    out_nodes = []
+    drv_node = -1
+    for tap in design.taps:
+        part = design.parts[tap.part]
+        at = b.node(tap.node)
+        if tap.stub is not None:
+            end = b.node(f"{tap.name}:stub")
+            add_line(at, end, tap.stub.line, tap.stub.length, f"tap {tap.name} stub")
+            at = end
+        if tap.name in series:
+            pad = b.node(f"{tap.name}:pad")
+            b.r(at, pad, series[tap.name].r)
+            at = pad
+        l_pkg = np.asarray(part.l_pkg, dtype=float)
+        if _vmax(l_pkg) > 0:
+            if _vmin(l_pkg) <= 0:
+                raise DesignError("l_pkg is zero in some variants and positive in others; give it a small "
+                                  "positive minimum", source=design.source, table=f"parts.{part.name}", key="l_pkg")
+            die = b.node(f"{tap.name}:die")
+            b.l(at, die, l_pkg)
+            at = die
+        if _vmax(part.c_pin) > 0:
+            b.c(at, -1, part.c_pin)
+        if np.all(np.isfinite(part.r_in)):
+            b.r(at, -1, part.r_in)
+        out_nodes.append(at)
+        if tap.name == driver:
+            drv_node = at
+
+    for term in design.terminations:
+        if term.type == "parallel":
+            b.src(b.node(term.node), term.r, term.v)
+        elif term.type == "thevenin":
+            b.src(b.node(term.node), term.r_up, term.v_up)
+            b.r(b.node(term.node), -1, term.r_down)
+        elif term.type == "rc":
+            mid = b.node(f"termination #{term.index + 1}:rc")
+            b.r(b.node(term.node), mid, term.r)
+            b.c(mid, -1, term.c)
+
+    # driver states: the edge goes from state 0 to state 1
+    lo = (dpart.v_low, dpart.r_low)
+    hi = (dpart.v_high, dpart.r_high)
+    (v0, r0), (v1, r1) = (lo, hi) if edge == "rise" else (hi, lo)
+
+    return _assemble(b, design, drv_node, out_nodes, v0, r0, v1, r1, ramp_time(design, edge), dt,
+                     n_steps, driver, edge, notes)
+
+
+def _union_find(n, pairs):
+    parent = list(range(n))
+
+    def find(x):
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    merged = []
+    for k, (a, c) in enumerate(pairs):
+        if c < 0:
+            continue
+        ra, rc = find(a), find(c)
+        if ra != rc:
+            parent[ra] = rc
+            merged.append(k)
+    return [find(i) for i in range(n)], merged
+
+
+def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, dt, n_steps,
+              driver, edge, notes) -> Netlist:
+    n0 = len(b.names)
+    # clusters: nodes joined by lumped two-node elements (lines decouple them within a step)
+    pairs = [(a, c) for a, c, *_ in b.res] + [(a, c) for a, c, *_ in b.caps] + [(a, c) for a, c, *_ in b.inds]
+    roots, _ = _union_find(n0, pairs)
+    groups = {}
+    for i in range(n0):
+        groups.setdefault(roots[i], []).append(i)
+    order = [i for g in groups.values() for i in g]
+    newidx = np.empty(n0, dtype=np.int64)
+    newidx[order] = np.arange(n0)
+    cl_sizes = [len(g) for g in groups.values()]
+    cl_start = np.concatenate([[0], np.cumsum(cl_sizes)]).astype(np.int64)
+    cl_moff = np.concatenate([[0], np.cumsum([m * m for m in cl_sizes])]).astype(np.int64)
+
+    def ren(x):
+        return int(newidx[x]) if x >= 0 else -1
+
+    def arr(items, k):
+        return np.array([ren(it[k]) for it in items], dtype=np.int64)
+
+    def vals(items, k):
+        if not items:
+            return np.zeros((0, b.n))
+        return np.ascontiguousarray(np.stack([it[k] for it in items]))
+
+    line_a, line_b = arr(b.lines, 0), arr(b.lines, 1)
+    res_a, res_b = arr(b.res, 0), arr(b.res, 1)
+    cap_a, cap_b = arr(b.caps, 0), arr(b.caps, 1)
+    ind_a, ind_b = arr(b.inds, 0), arr(b.inds, 1)
+    src_node = np.array([ren(s[0]) for s in b.srcs], dtype=np.int64)
+    names = [b.names[i] for i in order]
+
+    # DC: lines (lossless sections) and inductors are shorts; merge their nodes.
+    shorts = [(int(line_a[k]), int(line_b[k])) for k in range(len(line_a))] + \
+             [(int(ind_a[k]), int(ind_b[k])) for k in range(len(ind_a))]
+    droots, _ = _union_find(n0, shorts)
+    dc_groups = {}
+    for i in range(n0):
+        dc_groups.setdefault(droots[i], []).append(i)
+    group_list = list(dc_groups.values())
+    gid = np.empty(n0, dtype=np.int64)
+    for g, members in enumerate(group_list):
+        gid[members] = g
+    # Reverse Cuthill-McKee ordering of the DC groups keeps the conductance matrix banded
+    # (a trunk with stubs has a bandwidth of a few); the banded Cholesky is then O(n).
+    dc_map, dc_bw = _rcm_map(len(group_list), gid, res_a, res_b)
+    # Spanning forest of the shorts, leaves first, to recover their DC currents from KCL.
+    tree_kind, tree_elem, tree_child, tree_parent = _short_tree(n0, line_a, line_b, ind_a, ind_b)
+
+    ring_len = np.zeros(len(b.lines), dtype=np.int64)
+    line_td = vals(b.lines, 3)
+    for k in range(len(b.lines)):
+        ring_len[k] = int(math.floor(_vmax(line_td[k]) / dt + 1e-9)) + 2
+
+    if drv_node < 0:
+        raise RuntimeError("driver node not found")  # unreachable: flatten checked the tap
+    return Netlist(
+        n_nodes=n0, node_names=names, cl_start=cl_start, cl_moff=cl_moff,
+        line_a=line_a, line_b=line_b, res_a=res_a, res_b=res_b, cap_a=cap_a, cap_b=cap_b,
+        ind_a=ind_a, ind_b=ind_b, src_node=src_node, drv_node=ren(drv_node),
+        out_node=np.array([ren(x) for x in out_nodes], dtype=np.int64),
+        dc_map=dc_map, n_dc=len(group_list), dc_bw=dc_bw,
+        tree_kind=tree_kind, tree_elem=tree_elem, tree_child=tree_child, tree_parent=tree_parent,
+        ring_len=ring_len,
+        line_z0=vals(b.lines, 2), line_td=line_td, res_r=vals(b.res, 2), cap_c=vals(b.caps, 2),
+        ind_l=vals(b.inds, 2), src_r=vals(b.srcs, 1), src_v=vals(b.srcs, 2),
+        drv_v0=b.v(v0).copy(), drv_v1=b.v(v1).copy(), drv_r0=b.v(r0).copy(), drv_r1=b.v(r1).copy(),
+        t_ramp=b.v(t_ramp).copy(), dt=dt, n_steps=n_steps, n_variants=b.n,
+        taps=design.tap_names, driver=driver, edge=edge, notes=notes,
+    )
+
+
+def _rcm_map(n_groups, gid, res_a, res_b):
+    """Map nodes to DC unknowns ordered by reverse Cuthill-McKee; return (map, bandwidth)."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+    ra, rb = [], []
+    for a, c in zip(res_a, res_b):
+        if c >= 0 and gid[a] != gid[c]:
+            ra += [gid[a], gid[c]]
+            rb += [gid[c], gid[a]]
+    ra += list(range(n_groups))
+    rb += list(range(n_groups))
+    m = coo_matrix((np.ones(len(ra)), (ra, rb)), shape=(n_groups, n_groups)).tocsr()
+    perm = reverse_cuthill_mckee(m, symmetric_mode=True)
+    pos = np.empty(n_groups, dtype=np.int64)
+    pos[perm] = np.arange(n_groups)
+    bw = 0
+    for a, c in zip(ra, rb):
+        bw = max(bw, abs(int(pos[a]) - int(pos[c])))
+    node_map = pos[gid].astype(np.int64)
+    return node_map, bw
+
+
+def _short_tree(n0, line_a, line_b, ind_a, ind_b):
+    """Leaf-first list of spanning-forest edges over the DC shorts (kind 0 line, 1 inductor)."""
+    adj = [[] for _ in range(n0)]
+    for k in range(len(line_a)):
+        adj[line_a[k]].append((0, k, int(line_b[k])))
+        adj[line_b[k]].append((0, k, int(line_a[k])))
+    for k in range(len(ind_a)):
+        adj[ind_a[k]].append((1, k, int(ind_b[k])))
+        adj[ind_b[k]].append((1, k, int(ind_a[k])))
+    seen = np.zeros(n0, dtype=bool)
+    edges = []
+    for root in range(n0):
+        if seen[root] or not adj[root]:
+            continue
+        seen[root] = True
+        queue = [root]
+        while queue:
+            u = queue.pop(0)
+            for kind, k, w in adj[u]:
+                if not seen[w]:
+                    seen[w] = True
+                    edges.append((kind, k, w, u))
+                    queue.append(w)
+    edges.reverse()  # BFS order reversed: every child's subtree is done before its own edge
+    a = np.array(edges, dtype=np.int64).reshape(-1, 4)
+    return (np.ascontiguousarray(a[:, 0]), np.ascontiguousarray(a[:, 1]),
+            np.ascontiguousarray(a[:, 2]), np.ascontiguousarray(a[:, 3]))
