@@ -13,7 +13,6 @@ a batch of variants flows through :mod:`budget.netlist` in one pass.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from types import MappingProxyType
 from typing import Mapping
 
 import numpy as np
@@ -231,8 +230,24 @@ class Design:
         return rebuild(self, values, source=source)
 
 
+class FrozenDict(dict):
+    """A read-only dict (picklable, unlike MappingProxyType, so designs travel to dask workers)."""
+
+    def _readonly(self, *args, **kwargs):
+        raise TypeError("design values are read-only; use Design.with_values()")
+
+    __setitem__ = __delitem__ = clear = pop = popitem = setdefault = update = _readonly  # type: ignore
+
+    def __reduce__(self):
+        return (FrozenDict, (dict(self),))
+
+    def __hash__(self):
+        return id(self)
+
+
 def frozen(mapping) -> Mapping:
-    return MappingProxyType(dict(mapping))
+    """Read-only copy of ``mapping``."""
+    return FrozenDict(mapping)
 
 
 __all__ = [

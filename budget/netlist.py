@@ -190,10 +190,13 @@ def default_t_stop(design: Design, edge: str) -> float:
 
 
 def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
-            t_stop: float | None = None) -> Netlist:
+            t_stop: float | None = None, envelope: Design | None = None) -> Netlist:
     """Flatten ``design`` with tap ``driver`` driving an ``edge`` ("rise" or "fall").
 
     dt [s] and t_stop [s] override the design's own and the automatic choice.
+    ``envelope`` (same structure, values covering a whole sweep) makes the
+    structural choices (lumped or not, loss sections) so that every chunk of a
+    sweep gets the same netlist; default: ``design`` itself.
     """
     if edge not in EDGES:
         raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {edge!r}")
@@ -219,16 +222,21 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     for name in design.nodes:
         b.node(name)
 
-    def add_line(a, bnode, line_name, length, label):
-        lt = design.lines[line_name]
+    env = envelope if envelope is not None else design
+
+    def line_values(d, line_name, length):
+        lt = d.lines[line_name]
         z0 = np.asarray(lt.z0, dtype=float)
-        td = np.asarray(lt.delay, dtype=float) * length
-        r_tot = np.asarray(lt.r_dc, dtype=float) * length
-        lossy = _vmax(r_tot) > 0
-        if lossy and _vmin(r_tot) <= 0:
+        return z0, np.asarray(lt.delay, dtype=float) * length, np.asarray(lt.r_dc, dtype=float) * length
+
+    def add_line(a, bnode, line_name, length, env_length, label):
+        z0, td, r_tot = line_values(design, line_name, length)
+        ez0, etd, er_tot = line_values(env, line_name, env_length)
+        lossy = _vmax(er_tot) > 0
+        if lossy and min(_vmin(r_tot), _vmin(er_tot)) <= 0:
             raise DesignError("r_dc is zero in some variants and positive in others; give it a small "
                               "positive minimum", source=design.source, table=f"lines.{line_name}", key="r_dc")
-        if _vmin(td) < dt * (1 - 1e-9):
+        if _vmin(etd) < dt * (1 - 1e-9):
             # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (REFERENCES B1).
             notes.append(f"{label}: delay {_vmin(td) * 1e12:.3g} ps is below the time step "
                          f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2)")
@@ -245,8 +253,8 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             b.line(a, bnode, z0, td)
             return
         # Series loss lumped between lossless sections: R/(2n) | td/n | R/n | ... | td/n | R/(2n).
-        want = math.ceil(_vmax(r_tot / z0) / LOSS_SECTION_FRACTION)
-        n_sec = max(1, min(want, int(_vmin(td) / dt * (1 + 1e-9)), 64))
+        want = math.ceil(_vmax(er_tot / ez0) / LOSS_SECTION_FRACTION)
+        n_sec = max(1, min(want, int(_vmin(etd) / dt * (1 + 1e-9)), 64))
         if n_sec < want:
             notes.append(f"{label}: series loss lumped in {n_sec} sections (accuracy would like {want}); "
                          "expect up to "
@@ -261,17 +269,18 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
         b.r(prev, bnode, r_tot / n_sec / 2)
 
     for s in design.segments:
-        add_line(b.node(s.a), b.node(s.b), s.line, s.length, f"segment #{s.index + 1} ({s.a}-{s.b})")
+        add_line(b.node(s.a), b.node(s.b), s.line, s.length, env.segments[s.index].length,
+                 f"segment #{s.index + 1} ({s.a}-{s.b})")
 
     series = {t.tap: t for t in design.terminations if t.type == "series"}
     out_nodes = []
     drv_node = -1
-    for tap in design.taps:
+    for tap, etap in zip(design.taps, env.taps):
         part = design.parts[tap.part]
         at = b.node(tap.node)
         if tap.stub is not None:
             end = b.node(f"{tap.name}:stub")
-            add_line(at, end, tap.stub.line, tap.stub.length, f"tap {tap.name} stub")
+            add_line(at, end, tap.stub.line, tap.stub.length, etap.stub.length, f"tap {tap.name} stub")
             at = end
         if tap.name in series:
             pad = b.node(f"{tap.name}:pad")

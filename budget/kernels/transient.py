@@ -181,8 +181,8 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
               wave_out, dc_out, status):
     """Simulate variants b0 .. b0+B-1 of one flattened bus (values are ``[item, N]``).
 
-    Writes pin waveforms wave_out[step, out, b] [V] when wave_out has n_steps
-    rows (else records nothing), the DC node voltages of the start and end
+    Writes pin waveforms wave_out[step, out, b - b0] [V] (block-local variant
+    index) when wave_out has n_steps rows (else records nothing), the DC node voltages of the start and end
     states into dc_out[0 or 1, node, b] [V], and a STATUS_* per variant into
     status[b].
     """
@@ -329,7 +329,7 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
     if record:
         for o in range(out_node.shape[0]):
             for bb in range(B):
-                wave_out[0, o, b0 + bb] = v[out_node[o], bb]
+                wave_out[0, o, bb] = v[out_node[o], bb]
 
     # ---- time loop ---------------------------------------------------------------
     for step in range(1, n_steps):
@@ -424,11 +424,11 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
             for o in range(out_node.shape[0]):
                 n = out_node[o]
                 for bb in range(B):
-                    wave_out[step, o, b0 + bb] = v[n, bb]
+                    wave_out[step, o, bb] = v[n, bb]
 
     for bb in range(B):
         b = b0 + bb
         for o in range(out_node.shape[0]):
-            if record and not math.isfinite(wave_out[n_steps - 1, o, b]):
+            if not math.isfinite(v[out_node[o], bb]):
                 status[b] = STATUS_NOT_FINITE
     return 0

@@ -1,0 +1,278 @@
+"""Batch evaluation of many variants of a design: the engine behind checks, tolerances and sweeps.
+
+``sweep(design, {"lines.trunk.z0": z0_array, ...})`` evaluates N variants for
+every driver x edge and returns the metrics of every receiver as arrays.  The
+variants are cut into chunks; each chunk is flattened once per (driver, edge)
+with numpy arithmetic over the whole chunk (no per-variant Python work) and
+evaluated by :func:`budget.kernels.evaluate.evaluate_chunk` (numba, parallel
+over cores, vectorised over blocks of variants).  Waveforms are never stored,
+so memory grows only with the number of variants times the metrics kept.
+
+With ``client=`` (a ``dask.distributed.Client``) chunks run on the cluster's
+workers and are gathered in order; results equal the local run bit for bit.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Mapping, Sequence
+
+import numpy as np
+
+from .errors import ArgumentError
+from .kernels import metrics as mk
+from .kernels.evaluate import evaluate_chunk
+from .model import Design
+from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time
+from .simulate import check_status
+
+DEFAULT_CHUNK = 4096
+DEFAULT_BLOCK = 8
+KEEP = ("all", "margin")
+
+
+@dataclass
+class SweepResult:
+    """Results of a sweep; SI units.
+
+    Axes: variant (N), driver (``drivers``), edge (``edges``), receiver
+    (``receivers``: every tap whose part can receive).  Entries where the
+    receiver is the driving tap itself are NaN (metrics, margin) / 0 (bits)
+    and masked out of ``worst_margin`` and ``passed``.
+
+    metrics : [N, n_drv, n_edge, n_rcv, 12] float, see budget.kernels.metrics
+        (None with keep="margin")
+    margin : [N, n_drv, n_edge, n_rcv] [V]
+    bits : [N, n_drv, n_edge, n_rcv] int, VIOL_* bit sets
+    levels : [N, n_drv, n_edge, n_rcv, 2] V_lo, V_hi at each pin [V] (None with keep="margin")
+    """
+    drivers: tuple
+    edges: tuple
+    receivers: tuple
+    n_variants: int
+    margin: np.ndarray
+    bits: np.ndarray
+    metrics: np.ndarray | None
+    levels: np.ndarray | None
+    valid: np.ndarray  # [n_drv, n_rcv] bool: receiver != driver
+    dt: dict = field(default_factory=dict)
+    t_stop: dict = field(default_factory=dict)
+
+    @property
+    def passed(self) -> np.ndarray:
+        """[N] bool: every (driver, edge, receiver) free of violations."""
+        return ~np.any(self.bits != 0, axis=(1, 2, 3))
+
+    @property
+    def worst_margin(self) -> np.ndarray:
+        """[N] lowest margin [V] over every driver, edge and receiver."""
+        m = np.where(self.valid[None, :, None, :], self.margin, np.inf)
+        return m.min(axis=(1, 2, 3))
+
+    def worst_index(self, variant: int = 0):
+        """(driver, edge, receiver) names of the lowest margin of one variant."""
+        m = np.where(self.valid[:, None, :], self.margin[variant], np.inf)
+        d, e, r = np.unravel_index(int(np.argmin(m)), m.shape)
+        return self.drivers[d], self.edges[e], self.receivers[r]
+
+
+def _as_values(design: Design, values: Mapping[str, Sequence[float]] | None):
+    if not values:
+        return {}, 1
+    out, n = {}, None
+    for path, arr in values.items():
+        a = np.asarray(arr, dtype=float)
+        if a.ndim != 1:
+            raise ArgumentError(f"values[{path!r}] must be a 1-D array, got shape {a.shape}")
+        if n is not None and a.shape[0] != n:
+            raise ArgumentError(f"values[{path!r}] has {a.shape[0]} entries where others have {n}")
+        n = a.shape[0]
+        out[path] = a
+    if n == 0:
+        raise ArgumentError("no variants: the value arrays are empty")
+    return out, n
+
+
+def _envelope(design: Design, values: dict) -> Design:
+    """A 2-variant design holding the minimum and maximum of every swept value."""
+    if not values:
+        return design
+    return design.with_values({p: np.array([a.min(), a.max()]) for p, a in values.items()})
+
+
+def plan(design: Design, values: dict, edges, dt=None, t_stop=None):
+    """Time step and window [s] per edge, fixed for a whole sweep (from the value envelope)."""
+    env = _envelope(design, values)
+    dts, tss = {}, {}
+    for e in edges:
+        dts[e] = float(dt) if dt is not None else choose_dt(env, e)
+        if t_stop is not None:
+            tss[e] = float(t_stop)
+        elif design.bus.t_stop is not None:
+            tss[e] = float(np.max(design.bus.t_stop))
+        else:
+            tss[e] = default_t_stop(env, e)
+    return env, dts, tss
+
+
+def _receiver_arrays(design: Design, receivers, n):
+    """Per-receiver thresholds, ratings and allocations as [n_rcv, n] arrays."""
+    def arr(x, default):
+        return np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,))
+    vil, vih, vmax, vmin, av, af = [], [], [], [], [], []
+    alloc_v = sum(v for v, unit in design.budget.allocations.values() if unit == "V")
+    alloc_f = sum(v for v, unit in design.budget.allocations.values() if unit == "swing")
+    for r in receivers:
+        part = design.parts[design.tap(r).part]
+        vil.append(arr(part.vil, 0))
+        vih.append(arr(part.vih, 0))
+        vmax.append(arr(part.v_max, np.inf))
+        vmin.append(arr(part.v_min, -np.inf))
+        av.append(arr(alloc_v, 0))
+        af.append(arr(alloc_f, 0))
+    return [np.ascontiguousarray(np.stack(x)) if x else np.zeros((0, n)) for x in (vil, vih, vmax, vmin, av, af)]
+
+
+def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:
+    """Driver timing reference [s] per variant (ideal ramp or reference load)."""
+    part = design.parts[design.tap(driver).part]
+
+    def arr(x, default=0.0):
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
+    lo, hi = (part.v_low, part.r_low), (part.v_high, part.r_high)
+    (v0, r0), (v1, r1) = (lo, hi) if edge == "rise" else (hi, lo)
+    ref = part.ref_load
+    out = np.empty(n)
+    mk.ref_times(arr(ramp_time(design, edge)), arr(v0), arr(r0), arr(v1), arr(r1), ref is not None,
+                 arr(ref.r if ref else 1.0), arr(ref.v if ref else 0.0), arr(ref.c if ref else 0.0),
+                 arr(part.v_meas), part.v_meas is not None, out)
+    return out
+
+
+def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float,
+             envelope: Design | None = None, block: int = DEFAULT_BLOCK):
+    """Evaluate every variant of ``design`` (scalar or array values) for one driver and edge.
+
+    Returns (receivers, metrics [N, n_rcv, 12], bits [N, n_rcv], levels [N, n_rcv, 2]).
+    """
+    n = design.batch_size or 1
+    net = flatten(design, driver, edge, dt=dt, t_stop=t_stop, envelope=envelope)
+    receivers = tuple(r for r in design.receivers if r != driver)
+    rcv_out = np.array([design.tap_names.index(r) for r in receivers], dtype=np.int64)
+    vil, vih, vmax, vmin, av, af = _receiver_arrays(design, receivers, n)
+    t_ref = t_ref_of(design, driver, edge, n)
+    metrics = np.empty((n, len(receivers), mk.N_METRICS))
+    bits = np.empty((n, len(receivers)), dtype=np.int64)
+    levels = np.empty((n, len(receivers), 2))
+    status = np.empty(n, dtype=np.int64)
+    evaluate_chunk(block, net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
+                   net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
+                   net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child,
+                   net.tree_parent, net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l,
+                   net.src_r, net.src_v, net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp,
+                   net.dt, net.n_steps, edge == "rise", rcv_out, vil, vih, vmax, vmin, av, af,
+                   float(design.budget.settle_band), float(design.budget.min_margin), t_ref,
+                   metrics, bits, levels, status)
+    check_status(status, net, design)
+    return receivers, metrics, bits, levels
+
+
+def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, receivers, dts, tss,
+               envelope, keep, block):
+    """Evaluate variants lo..hi-1; returns arrays for that slice (used locally and on dask workers)."""
+    d = design.with_values({p: a[lo:hi] for p, a in values.items()}) if values else design
+    n = hi - lo
+    nd, ne, nr = len(drivers), len(edges), len(receivers)
+    margin = np.full((n, nd, ne, nr), np.nan)
+    bits = np.zeros((n, nd, ne, nr), dtype=np.int64)
+    metrics = np.full((n, nd, ne, nr, mk.N_METRICS), np.nan) if keep == "all" else None
+    levels = np.full((n, nd, ne, nr, 2), np.nan) if keep == "all" else None
+    for i, drv in enumerate(drivers):
+        for j, e in enumerate(edges):
+            rcv, m, bt, lv = evaluate(d, drv, e, dt=dts[e], t_stop=tss[e], envelope=envelope, block=block)
+            cols = [receivers.index(r) for r in rcv]
+            margin[:, i, j, cols] = m[:, :, mk.MARGIN]
+            bits[:, i, j, cols] = bt
+            if metrics is not None:
+                metrics[:, i, j, cols, :] = m
+                levels[:, i, j, cols, :] = lv
+    return margin, bits, metrics, levels
+
+
+def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *,
+          drivers: Sequence[str] | None = None, edges: Sequence[str] = EDGES,
+          dt: float | None = None, t_stop: float | None = None, keep: str = "all",
+          chunk: int = DEFAULT_CHUNK, block: int = DEFAULT_BLOCK, client=None,
+          progress: Callable[[int, int], None] | None = None) -> SweepResult:
+    """Evaluate N variants of ``design`` for every driver x edge x receiver.
+
+    Parameters
+    ----------
+    design : Design
+    values : mapping of dotted path -> 1-D array (N,) in SI units
+        Values replacing the design's, one entry per variant (e.g.
+        ``{"lines.trunk.z0": np.linspace(45, 55, 101)}``).  None: the nominal design.
+    drivers : taps that drive (default: every tap whose part can drive)
+    edges : subset of ("rise", "fall")
+    dt, t_stop : float [s], optional
+        Fixed for the whole sweep; default from the envelope of the values.
+    keep : "all" (every metric) or "margin" (margins and violation bits only, for huge sweeps)
+    chunk : variants per chunk (memory and progress granularity)
+    block : variants per vectorised kernel block
+    client : dask.distributed.Client, optional; chunks run on its workers
+    progress : callable(done, total), optional
+    """
+    if keep not in KEEP:
+        raise ArgumentError(f"keep must be one of {', '.join(KEEP)}, got {keep!r}")
+    for e in edges:
+        if e not in EDGES:
+            raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {e!r}")
+    if not edges:
+        raise ArgumentError("edges is empty")
+    drivers = tuple(drivers) if drivers is not None else design.drivers
+    if not drivers:
+        raise ArgumentError("the design has no tap whose part can drive")
+    for d in drivers:
+        tap = design.tap(d)
+        if not design.parts[tap.part].can_drive:
+            raise ArgumentError(f"tap {d!r} cannot drive (part role {design.parts[tap.part].role!r})")
+    if chunk < 1 or block < 1:
+        raise ArgumentError("chunk and block must be positive")
+    values, n = _as_values(design, values)
+    edges = tuple(edges)
+    receivers = design.receivers
+    env, dts, tss = plan(design, values, edges, dt, t_stop)
+    # validate every value once, up front (each chunk is validated again when built)
+    if values:
+        design.with_values(values)
+    nd, ne, nr = len(drivers), len(edges), len(receivers)
+    margin = np.empty((n, nd, ne, nr))
+    bits = np.empty((n, nd, ne, nr), dtype=np.int64)
+    metrics = np.empty((n, nd, ne, nr, mk.N_METRICS)) if keep == "all" else None
+    levels = np.empty((n, nd, ne, nr, 2)) if keep == "all" else None
+    bounds = [(lo, min(n, lo + chunk)) for lo in range(0, n, chunk)]
+
+    def store(lo, hi, res):
+        margin[lo:hi], bits[lo:hi] = res[0], res[1]
+        if metrics is not None:
+            metrics[lo:hi], levels[lo:hi] = res[2], res[3]
+
+    args = (drivers, edges, receivers, dts, tss, env, keep, block)
+    done = 0
+    if client is None:
+        for lo, hi in bounds:
+            store(lo, hi, _run_chunk(design, values, lo, hi, *args))
+            done += hi - lo
+            if progress:
+                progress(done, n)
+    else:
+        d_f = client.scatter(design, broadcast=True)
+        futures = [client.submit(_run_chunk, d_f, {p: a[lo:hi] for p, a in values.items()}, 0, hi - lo, *args,
+                                 pure=False) for lo, hi in bounds]
+        for (lo, hi), fut in zip(bounds, futures):
+            store(lo, hi, fut.result())
+            done += hi - lo
+            if progress:
+                progress(done, n)
+    valid = np.array([[r != d for r in receivers] for d in drivers], dtype=bool).reshape(nd, nr)
+    return SweepResult(drivers=drivers, edges=edges, receivers=receivers, n_variants=n, margin=margin,
+                       bits=bits, metrics=metrics, levels=levels, valid=valid, dt=dts, t_stop=tss)
