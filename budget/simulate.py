@@ -57,8 +57,8 @@ class Waveforms:
         return self.v_end if self.edge == "rise" else self.v_start
 
 
-def run_netlist(net: Netlist, *, record: bool = True, block: int | None = None):
-    """Run the transient kernel on every variant of ``net``.
+def run_netlist(net: Netlist, *, record: bool = True):
+    """Run the transient kernel on every variant of ``net`` (blocks of ``LANES`` variants).
 
     Returns (waves [n_steps, n_taps, N] or None, dc [2, n_nodes, N], status [N]).
     """
@@ -67,16 +67,15 @@ def run_netlist(net: Netlist, *, record: bool = True, block: int | None = None):
     waves = np.empty((net.n_steps if record else 0, n_out, n))
     dc = np.empty((2, net.n_nodes, n))
     status = np.empty(n, dtype=np.int64)
-    block = block or n
-    for b0 in range(0, n, block):
-        bsz = min(block, n - b0)
+    for b0 in range(0, n, tk.LANES):
+        bsz = min(tk.LANES, n - b0)
         tk.run_block(
             b0, bsz, net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
             net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
             net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child, net.tree_parent,
             net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l, net.src_r, net.src_v,
             net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp, net.dt, net.n_steps,
-            waves, dc, status)
+            waves[:, :, b0:b0 + bsz], dc, status)
     return (waves if record else None), dc, status
 
 

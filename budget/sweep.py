@@ -26,7 +26,6 @@ from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time
 from .simulate import check_status
 
 DEFAULT_CHUNK = 4096
-DEFAULT_BLOCK = 8
 KEEP = ("all", "margin")
 
 
@@ -149,7 +148,7 @@ def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:
 
 
 def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float,
-             envelope: Design | None = None, block: int = DEFAULT_BLOCK):
+             envelope: Design | None = None):
     """Evaluate every variant of ``design`` (scalar or array values) for one driver and edge.
 
     Returns (receivers, metrics [N, n_rcv, 12], bits [N, n_rcv], levels [N, n_rcv, 2]).
@@ -164,7 +163,7 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
     bits = np.empty((n, len(receivers)), dtype=np.int64)
     levels = np.empty((n, len(receivers), 2))
     status = np.empty(n, dtype=np.int64)
-    evaluate_chunk(block, net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
+    evaluate_chunk(net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
                    net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
                    net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child,
                    net.tree_parent, net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l,
@@ -177,7 +176,7 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
 
 
 def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, receivers, dts, tss,
-               envelope, keep, block):
+               envelope, keep):
     """Evaluate variants lo..hi-1; returns arrays for that slice (used locally and on dask workers)."""
     d = design.with_values({p: a[lo:hi] for p, a in values.items()}) if values else design
     n = hi - lo
@@ -188,7 +187,7 @@ def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, r
     levels = np.full((n, nd, ne, nr, 2), np.nan) if keep == "all" else None
     for i, drv in enumerate(drivers):
         for j, e in enumerate(edges):
-            rcv, m, bt, lv = evaluate(d, drv, e, dt=dts[e], t_stop=tss[e], envelope=envelope, block=block)
+            rcv, m, bt, lv = evaluate(d, drv, e, dt=dts[e], t_stop=tss[e], envelope=envelope)
             cols = [receivers.index(r) for r in rcv]
             margin[:, i, j, cols] = m[:, :, mk.MARGIN]
             bits[:, i, j, cols] = bt
@@ -201,7 +200,7 @@ def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, r
 def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *,
           drivers: Sequence[str] | None = None, edges: Sequence[str] = EDGES,
           dt: float | None = None, t_stop: float | None = None, keep: str = "all",
-          chunk: int = DEFAULT_CHUNK, block: int = DEFAULT_BLOCK, client=None,
+          chunk: int = DEFAULT_CHUNK, client=None,
           progress: Callable[[int, int], None] | None = None) -> SweepResult:
     """Evaluate N variants of ``design`` for every driver x edge x receiver.
 
@@ -217,7 +216,6 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
         Fixed for the whole sweep; default from the envelope of the values.
     keep : "all" (every metric) or "margin" (margins and violation bits only, for huge sweeps)
     chunk : variants per chunk (memory and progress granularity)
-    block : variants per vectorised kernel block
     client : dask.distributed.Client, optional; chunks run on its workers
     progress : callable(done, total), optional
     """
@@ -235,8 +233,8 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
         tap = design.tap(d)
         if not design.parts[tap.part].can_drive:
             raise ArgumentError(f"tap {d!r} cannot drive (part role {design.parts[tap.part].role!r})")
-    if chunk < 1 or block < 1:
-        raise ArgumentError("chunk and block must be positive")
+    if chunk < 1:
+        raise ArgumentError(f"chunk must be a positive number of variants, got {chunk!r}")
     values, n = _as_values(design, values)
     edges = tuple(edges)
     receivers = design.receivers
@@ -256,7 +254,7 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
         if metrics is not None:
             metrics[lo:hi], levels[lo:hi] = res[2], res[3]
 
-    args = (drivers, edges, receivers, dts, tss, env, keep, block)
+    args = (drivers, edges, receivers, dts, tss, env, keep)
     done = 0
     if client is None:
         for lo, hi in bounds:

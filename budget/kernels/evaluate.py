@@ -1,7 +1,7 @@
 """Numba kernel: transient + edge metrics + violations for a chunk of variants.
 
 This is the throughput path used by sweeps, tolerance analyses, the budget
-check and the C library.  Variants are processed in blocks of ``B`` (the
+check and the C library.  Variants are processed in blocks of ``LANES`` (the
 variant axis innermost, so the compiler can vectorise across it) and blocks
 run in parallel across cores (``prange``).  Waveforms live only in a
 per-block scratch buffer: memory does not grow with the number of variants.
@@ -13,11 +13,11 @@ from numba import prange
 
 from ..jit import parallel_kernel
 from .metrics import N_METRICS, edge_metrics, violation_bits
-from .transient import run_block
+from .transient import LANES, run_block
 
 
 @parallel_kernel
-def evaluate_chunk(B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
+def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
                    ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
                    tree_kind, tree_elem, tree_child, tree_parent, ring_len,
                    line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
@@ -38,11 +38,11 @@ def evaluate_chunk(B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, 
     n_rcv = rcv_out.shape[0]
     dc = np.empty((2, n_nodes, n))
     t = np.arange(n_steps) * dt
-    n_blk = (n + B - 1) // B
+    n_blk = (n + LANES - 1) // LANES
     for blk in prange(n_blk):
-        b0 = blk * B
-        bsz = min(B, n - b0)
-        waves = np.empty((n_steps, n_out, bsz))
+        b0 = blk * LANES
+        bsz = min(LANES, n - b0)
+        waves = np.empty((n_steps, n_out, LANES))
         run_block(b0, bsz, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
                   ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
                   tree_kind, tree_elem, tree_child, tree_parent, ring_len,
