@@ -91,6 +91,109 @@ def cmd_examples(args) -> int:
     return EXIT_PASS
 
 
+def _progress(args):
+    """A progress bar on stderr when it is a terminal (and --no-progress is not given), else None."""
+    if getattr(args, "no_progress", False):
+        return None
+    from .progress import ProgressBar
+
+    bar = ProgressBar("busbudget check")
+    return bar if bar.enabled else None
+
+
+def _run_check(args, design):
+    from .check import check
+
+    bar = _progress(args)
+    try:
+        return check(design, corners=args.corners, monte_carlo=args.monte_carlo, seed=args.seed,
+                     search=args.search, progress=bar, distribution=args.distribution,
+                     max_corners=args.max_corners, search_generations=args.search_generations)
+    finally:
+        if bar is not None:
+            bar.close()
+
+
+def cmd_check(args) -> int:
+    """The budget report (text or JSON); exit 0 pass, 1 fail, 2 bad input."""
+    import json
+
+    design = load_design(args.design)
+    report = _run_check(args, design)
+    if args.json:
+        body = json.dumps(report.to_json(), indent=2, allow_nan=False) + "\n"
+    else:
+        body = report.text()
+    if args.out:
+        write_atomically(args.out, lambda fh: fh.write(body))
+        w = report.worst
+        print(f"{report.verdict.upper()}: worst {w['driver']} -> {w['receiver']} {w['edge']} {w['corner']}: "
+              f"headroom {w['headroom']:+.3f} V; report written to {args.out}")
+    else:
+        sys.stdout.write(body)
+    return EXIT_PASS if report.passed else EXIT_FAIL
+
+
+def cmd_plot(args) -> int:
+    """Pictures: pin waveforms for one driver and edge, or the driver x receiver margin map."""
+    from . import plots
+
+    if Path(args.out).suffix.lower() not in plots.FORMATS:
+        raise InputError(f"{args.out}: unknown picture format; use one of {', '.join(plots.FORMATS)}")
+    design = load_design(args.design)
+    if args.map:
+        report = _run_check(args, design)
+        fig = plots.margin_map_figure(report)
+    else:
+        if not args.driver or not args.edge:
+            raise InputError("plot needs --driver and --edge (or --map for the margin map)")
+        fig = plots.waveform_figure(design, args.driver, args.edge,
+                                    receivers=[args.receiver] if args.receiver else None,
+                                    corners=not args.no_corners)
+    plots.save(fig, args.out)
+    print(f"wrote {args.out}")
+    return EXIT_PASS
+
+
+def _count(text: str) -> int:
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if n < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 or more, got {n}")
+    return n
+
+
+def _positive(text: str) -> int:
+    n = _count(text)
+    if n < 1:
+        raise argparse.ArgumentTypeError("must be at least 1")
+    return n
+
+
+def _analysis_options(parser) -> None:
+    from .check import DISTRIBUTIONS, MAX_CORNERS, SEARCH_GENERATIONS
+
+    parser.add_argument("--corners", action="store_true",
+                        help="also evaluate every corner of the [tolerances] box (2**k variants)")
+    parser.add_argument("--monte-carlo", type=_count, default=0, metavar="N",
+                        help="also evaluate N random variants inside the tolerance box")
+    parser.add_argument("--seed", type=_count, default=None, metavar="S",
+                        help="seed of the Monte Carlo draws and of the search (default: a fresh one, reported)")
+    parser.add_argument("--distribution", choices=DISTRIBUTIONS, default="uniform",
+                        help="Monte Carlo sampling: uniform inside each interval (default), or normal with "
+                             "the interval as +-3 sigma, truncated")
+    parser.add_argument("--search", action="store_true",
+                        help="also search the tolerance box for a case worse than every corner "
+                             "(differential evolution, started from the worst corner)")
+    parser.add_argument("--search-generations", type=_positive, default=SEARCH_GENERATIONS, metavar="G",
+                        help=f"most generations of the search (default {SEARCH_GENERATIONS})")
+    parser.add_argument("--max-corners", type=_positive, default=MAX_CORNERS, metavar="N",
+                        help=f"refuse more corners than this (default {MAX_CORNERS})")
+    parser.add_argument("--no-progress", action="store_true", help="no progress bar even on a terminal")
+
+
 def _seconds(text: str) -> float:
     from .units import parse_quantity
 
@@ -119,6 +222,35 @@ def build_parser() -> argparse.ArgumentParser:
 
     e = sub.add_parser("examples", help="list the bundled example designs")
     e.set_defaults(func=cmd_examples)
+
+    c = sub.add_parser(
+        "check", help="budget report: every driver x receiver x edge, nominal and across tolerances",
+        description="Check that every receiver keeps its noise margin whichever device drives. "
+                    "Exit 0 = passes, 1 = a margin or absolute rating is violated, 2 = bad input. "
+                    "Results are estimates: confirm by measurement and with the part makers' data.")
+    c.add_argument("design", help="design file, or example:NAME")
+    c.add_argument("--json", action="store_true",
+                   help="write the JSON document (schema busbudget.check/1) instead of the text report")
+    c.add_argument("--out", metavar="FILE", default=None,
+                   help="write the report to FILE instead of standard output (a one-line verdict is printed)")
+    _analysis_options(c)
+    c.set_defaults(func=cmd_check)
+
+    pl = sub.add_parser(
+        "plot", help="pictures (PNG/SVG/PDF): pin waveforms with corners, or the driver x receiver margin map",
+        description="busbudget plot DESIGN --driver TAP --edge rise|fall --out FILE.png: pin waveforms at every "
+                    "receiver with the threshold region shaded, every tolerance corner in grey and the worst "
+                    "one highlighted.  busbudget plot DESIGN --map --out FILE.png [--corners ...]: "
+                    "the worst margin of every driver x receiver pair.")
+    pl.add_argument("design", help="design file, or example:NAME")
+    pl.add_argument("--out", required=True, metavar="FILE", help="output picture (.png, .svg or .pdf)")
+    pl.add_argument("--driver", help="name of the driving tap (waveform plot)")
+    pl.add_argument("--edge", choices=("rise", "fall"), help="edge (waveform plot)")
+    pl.add_argument("--receiver", help="show only this receiver (waveform plot)")
+    pl.add_argument("--no-corners", action="store_true", help="waveform plot: nominal design only")
+    pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
+    _analysis_options(pl)
+    pl.set_defaults(func=cmd_plot)
 
     for register in COMMANDS:
         register(sub)

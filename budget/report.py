@@ -1,0 +1,276 @@
+"""Reports of a budget check: a text table for people, a versioned JSON document for scripts.
+
+JSON (schema ``busbudget.check/1``, DESIGN.md section 5 is the contract; keys
+are only ever added): SI units (volts, seconds), ``null`` for a time that
+never occurs, never NaN.  Extensions beyond the contract are listed in
+:data:`JSON_EXTENSIONS`.
+
+Text: a header, the budget, one line per receiver with its worst figures over
+every driver, both edges and every analysed case (the receiver holding the
+bus-level worst case is marked ``>>``), the worst case in words, the tolerance
+analyses, the verdict line, and what the model assumes.  "-" marks a figure
+that does not apply, "never" a time that never occurs (a violation).
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .check import ASSUMPTIONS, SCHEMA, CheckReport
+
+RESULTS_NOTE = (
+    "one result per (driver, receiver, edge) for each analysis: the nominal design, and for corners, "
+    "Monte Carlo and search the variant of that analysis that is worst for that (driver, receiver, edge) "
+    "(a violation first, then the lowest headroom); the other variants are counted in 'analyses' but not "
+    "listed. 'corner' names the variant; its values are in 'variants'.")
+
+JSON_EXTENSIONS = {
+    "source": "path of the design file",
+    "signaling": "single-ended or differential (differential: all levels are differential-mode)",
+    "results[].analysis": "nominal, corners, monte_carlo or search",
+    "results[].margin_percent_of_swing": "the row's margin as a percentage of |v_hi - v_lo|",
+    "results[].headroom": "lowest of margin - min_margin, v_max - v_peak, v_trough - v_min [V]",
+    "worst.headroom / percent_of_swing / margin / margin_percent_of_swing / limit / violations / analysis":
+        "how far the worst case is from its limit, and which limit",
+    "analyses": "settings and summary of every analysis run (counts, seed, distribution, Monte Carlo failure "
+                "probability with its Wilson 95 % interval, search settings and result)",
+    "tolerances": "the tolerance box: path -> {min, max, unit}",
+    "budget": "allocations (V or fraction of swing), min_margin [V], settle_band [-]",
+    "variants": "label -> values [SI] of every variant named in results, worst and analyses",
+    "assumptions / safety": "what the model assumes; results are estimates",
+}
+
+
+def _clean(x):
+    """JSON-safe copy: NaN/inf -> None, numpy scalars -> Python, tuples -> lists."""
+    if isinstance(x, dict):
+        return {str(k): _clean(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_clean(v) for v in x]
+    if isinstance(x, (bool, np.bool_)):
+        return bool(x)
+    if isinstance(x, (int, np.integer)):
+        return int(x)
+    if isinstance(x, (float, np.floating)):
+        x = float(x)
+        return x if math.isfinite(x) else None
+    return x
+
+
+def to_json(report: CheckReport) -> dict:
+    """The JSON document of a check (a dict ready for ``json.dumps(..., allow_nan=False)``)."""
+    tol = {p: {"min": lo, "max": hi, "unit": report.units.get(p)} for p, (lo, hi) in report.tolerances.items()}
+    doc = {
+        "schema": SCHEMA,
+        "design": report.design,
+        "verdict": report.verdict,
+        "worst": report.worst,
+        "results": report.results,
+        "results_note": RESULTS_NOTE,
+        "source": report.source,
+        "signaling": report.signaling,
+        "analyses": report.analyses,
+        "tolerances": tol,
+        "budget": report.budget,
+        "variants": report.variants,
+        "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
+        "assumptions": list(ASSUMPTIONS),
+        "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
+                  "absolute maximum ratings come from the datasheets; the applicable standards and the "
+                  "responsible engineer decide.",
+        "extensions": JSON_EXTENSIONS,
+    }
+    return _clean(doc)
+
+
+# ---------------------------------------------------------------------------
+# text
+
+_PREFIX = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"), (1e-9, "n"),
+           (1e-12, "p"), (1e-15, "f"))
+
+
+def si(x, unit: str) -> str:
+    """A value with an SI prefix: si(2.5e-12, 'F') -> '2.5 pF'."""
+    if x is None or not math.isfinite(x):
+        return "-"
+    if x == 0:
+        return f"0 {unit}".strip()
+    for scale, p in _PREFIX:
+        if abs(x) >= scale * 0.9995:
+            return f"{x / scale:.4g} {p}{unit}".strip()
+    return f"{x:.3g} {unit}".strip()
+
+
+def volts(x, sign: bool = True) -> str:
+    if x is None or not math.isfinite(x):
+        return "-"
+    return f"{x:+.3f} V" if sign else f"{x:.3f} V"
+
+
+def ns(x, never: bool = True) -> str:
+    if x is None or not math.isfinite(x):
+        return "never" if never else "-"
+    return f"{x * 1e9:.2f} ns"
+
+
+def pct(x) -> str:
+    if x is None or not math.isfinite(x):
+        return ""
+    return f"({x:.1f}%)"
+
+
+def _receiver_lines(report: CheckReport):
+    """Per receiver: worst figures over every driver, edge and analysis."""
+    out = []
+    names = report.receivers or list(dict.fromkeys(r["receiver"] for r in report.results))
+    for name in names:
+        rows = [r for r in report.results if r["receiver"] == name]
+        rise = [r for r in rows if r["edge"] == "rise"]
+        fall = [r for r in rows if r["edge"] == "fall"]
+
+        def lowest(rs, key):
+            rs = [r for r in rs if r[key] is not None]
+            return min(rs, key=lambda r: r[key]) if rs else None
+
+        mh, ml = lowest(rise, "margin_high"), lowest(fall, "margin_low")
+        rb = lowest(rows, "ringback")
+        fmin = [r["flight_min"] for r in rows]
+        fmax = [r["flight_max"] for r in rows]
+        settle = [r["settle_time"] for r in rows]
+        ringback_never = any(r["ringback"] is None for r in rows)
+        limiting = min(rows, key=lambda r: (r["pass"], r["headroom"] if r["headroom"] is not None else math.inf))
+        out.append({
+            "receiver": name,
+            "margin_high": f"{mh['margin_high']:+.3f} {pct(mh['margin_percent_of_swing'])}" if mh else "-",
+            "margin_low": f"{ml['margin_low']:+.3f} {pct(ml['margin_percent_of_swing'])}" if ml else "-",
+            "overshoot": f"{max(r['overshoot'] for r in rows):.3f}",
+            "undershoot": f"{max(r['undershoot'] for r in rows):.3f}",
+            "ringback": "never valid" if ringback_never else (f"{rb['ringback']:+.3f}" if rb else "-"),
+            "flight": _span(fmin, fmax),
+            "settle": "never" if any(x is None for x in settle) else f"{max(settle) * 1e9:.2f}",
+            "status": "ok" if all(r["pass"] for r in rows) else "FAIL",
+            "case": f"{limiting['driver']} {limiting['edge']} {limiting['corner']}",
+        })
+    return out
+
+
+def _span(fmin, fmax) -> str:
+    lo = "never" if any(x is None for x in fmin) else f"{min(fmin) * 1e9:.2f}"
+    hi = "never" if any(x is None for x in fmax) else f"{max(fmax) * 1e9:.2f}"
+    return f"{lo}..{hi}"
+
+
+def _table(headers, rows, marks):
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(headers)]
+    lines = ["   " + "  ".join(h.ljust(w) for h, w in zip(headers, widths)).rstrip()]
+    for r, m in zip(rows, marks):
+        lines.append((">> " if m else "   ") + "  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip())
+    return lines
+
+
+def _describe_variant(report: CheckReport, label: str) -> list:
+    v = report.variants.get(label)
+    if not v or not v.get("values"):
+        return []
+    ext = v.get("extremes", {})
+    out = []
+    for p, x in v["values"].items():
+        tag = f" ({ext[p]})" if p in ext else ""
+        out.append(f"      {p} = {si(x, report.units.get(p, ''))}{tag}")
+    return out
+
+
+def to_text(report: CheckReport) -> str:
+    """The readable report (see module docstring)."""
+    L = []
+    L.append(f"busbudget check: {report.design}")
+    L.append(f"design file: {report.source}  ({report.signaling}"
+             f"{', all levels differential-mode' if report.signaling == 'differential' else ''})")
+    a = report.analyses
+    done = ["nominal"]
+    if "corners" in a:
+        done.append(f"{a['corners']['variants']} corners")
+    if "monte_carlo" in a:
+        done.append(f"Monte Carlo {a['monte_carlo']['variants']} samples")
+    if "search" in a:
+        done.append(f"worst-case search {a['search']['variants']} candidates")
+    L.append("analyses: " + ", ".join(done))
+    b = report.budget
+    alloc = [f"{n} {si(x['value'], 'V')}" if x["unit"] == "V" else f"{n} {100 * x['value']:.3g}% of swing"
+             for n, x in b["allocations"].items()]
+    L.append("budget: " + (", ".join(alloc) if alloc else "no allocations")
+             + f"; required margin >= {si(b['min_margin'], 'V') if b['min_margin'] else '0 V'}"
+             + f"; settle band {100 * b['settle_band']:.3g}% of swing")
+    L.append("")
+    L.append("Per receiver, worst over every driver, both edges and every analysed case; margins after the "
+             "budget allocations, in V and % of swing:")
+    recs = _receiver_lines(report)
+    headers = ["receiver", "margin high V", "margin low V", "overshoot V", "undershoot V", "ringback V",
+               "flight ns", "settle ns", "status", "limiting case"]
+    keys = ["receiver", "margin_high", "margin_low", "overshoot", "undershoot", "ringback", "flight",
+            "settle", "status", "case"]
+    L += _table(headers, [[r[k] for k in keys] for r in recs],
+                [r["receiver"] == report.worst["receiver"] for r in recs])
+    L.append("")
+    w = report.worst
+    value = w["value"]
+    if isinstance(value, bool) or value is None:
+        shown = str(value).lower() if isinstance(value, bool) else "never"
+    else:
+        shown = volts(value)
+    head = w["headroom"]
+    L.append(f"worst case (>>): receiver {w['receiver']} when {w['driver']} drives, {w['edge']} edge, "
+             f"{w['corner']}: {w['metric']} = {shown}; headroom to its limit ({w['limit']}) "
+             f"{volts(head)}" + (f" = {w['percent_of_swing']:+.1f}% of swing" if w["percent_of_swing"] is not None
+                                 else ""))
+    if w["violations"]:
+        L.append(f"   violations there: {', '.join(w['violations'])}")
+    L += [line.replace("      ", "   ", 1) for line in _describe_variant(report, w["corner"])]
+    failing = sorted({(r["driver"], r["receiver"], r["edge"]) for r in report.results if not r["pass"]})
+    if failing:
+        listed = ", ".join(f"{d}->{r} {e}" for d, r, e in failing[:8])
+        more = f" and {len(failing) - 8} more" if len(failing) > 8 else ""
+        L.append(f"failing (driver->receiver edge): {listed}{more}")
+
+    if len(a) > 1:
+        L.append("")
+        L.append("tolerances:")
+    if "corners" in a:
+        c = a["corners"]
+        L.append(f"   corners: {c['variants']} ({len(c['toleranced_values'])} toleranced values), "
+                 f"{c['failed']} fail; worst: {c['worst_corner']}, headroom {volts(c['worst_headroom'])}"
+                 + ("" if c["requested"] else "  [run as the search's start]"))
+    if "monte_carlo" in a:
+        m = a["monte_carlo"]
+        lo, hi = m["wilson_95"]
+        L.append(f"   Monte Carlo: {m['variants']} samples ({m['distribution']}, seed {m['seed']}), {m['failed']} fail: "
+                 f"failure probability {100 * m['failure_probability']:.3g}% "
+                 f"(Wilson 95% interval {100 * lo:.3g}% .. {100 * hi:.3g}%); worst: {m['worst_sample']}, "
+                 f"headroom {volts(m['worst_headroom'])}")
+    if "search" in a:
+        s = a["search"]
+        line = (f"   search: {s['variants']} candidates in {s['generations']} generations (seed {s['seed']}); "
+                f"worst found: {s['worst_found']}, headroom {volts(s['worst_headroom'])}")
+        if "beats_corners_by" in s:
+            by = s["beats_corners_by"]
+            line += (f", {by * 1e3:.1f} mV below the worst corner" if by > 1e-6 else
+                     ", no case below the worst corner")
+        L.append(line)
+
+    L.append("")
+    if report.passed:
+        scope = "nominal design only" if len(a) == 1 else "across the analysed tolerances"
+        L.append(f"VERDICT: PASS - every receiver keeps its margin and ratings, whichever device drives ({scope})")
+    else:
+        L.append(f"VERDICT: FAIL - {w['driver']} -> {w['receiver']}, {w['edge']} edge, {w['corner']}: "
+                 f"{w['metric']} {shown}")
+    L.append("")
+    L.append("What the model assumes:")
+    for s in ASSUMPTIONS:
+        L.append(f" - {s}")
+    return "\n".join(L) + "\n"
+
+
+__all__ = ["to_json", "to_text", "si", "RESULTS_NOTE", "JSON_EXTENSIONS"]
