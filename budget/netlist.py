@@ -203,7 +203,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     dtap = design.tap(driver)
     dpart = design.parts[dtap.part]
     if not dpart.can_drive:
-        raise ArgumentError(f"tap {driver!r} uses part {dpart.name!r} whose role is {dpart.role!r}; "
+        raise ArgumentError(f"tap {driver!r} cannot drive: its part {dpart.name!r} has role {dpart.role!r}; "
                             f"taps that can drive: {', '.join(design.drivers) or 'none'}")
     n = design.batch_size or 1
     dt = float(dt if dt is not None else choose_dt(design, edge))
