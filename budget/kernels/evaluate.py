@@ -49,12 +49,16 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
                   line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
                   drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps, waves, dc, status)
         m = np.empty(N_METRICS)
-        wv = np.empty(n_steps)
-        for bb in range(bsz):
-            b = b0 + bb
-            for r in range(n_rcv):
-                o = rcv_out[r]
-                node = out_node[o]
+        wv = np.empty((LANES, n_steps))
+        for r in range(n_rcv):
+            o = rcv_out[r]
+            node = out_node[o]
+            # one sequential pass over the block's samples, transposed for the metrics
+            for k in range(n_steps):
+                for bb in range(LANES):
+                    wv[bb, k] = waves[k, o, bb]
+            for bb in range(bsz):
+                b = b0 + bb
                 if rising:
                     v_lo = dc[0, node, b]
                     v_hi = dc[1, node, b]
@@ -62,9 +66,7 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
                     v_lo = dc[1, node, b]
                     v_hi = dc[0, node, b]
                 swing = v_hi - v_lo
-                for k in range(n_steps):
-                    wv[k] = waves[k, o, bb]
-                edge_metrics(t, wv, rising, v_lo, v_hi, rcv_vil[r, b], rcv_vih[r, b], t_ref[b],
+                edge_metrics(t, wv[bb], rising, v_lo, v_hi, rcv_vil[r, b], rcv_vih[r, b], t_ref[b],
                              settle_frac * abs(swing), alloc_v[r, b] + alloc_frac[r, b] * abs(swing), m)
                 for k in range(N_METRICS):
                     metrics_out[b, r, k] = m[k]
