@@ -194,12 +194,25 @@ class _Evaluator:
         part_of = {t.name: t.part for t in design.taps}
         self.receivers = design.receivers
         self.rcv_parts = [part_of[r] for r in self.receivers]
+        # the two envelope variants must themselves be physical designs; if not,
+        # the nominal design runs alone and any tolerance analysis is refused
+        self.box_error = None
+        if self.box:
+            try:
+                design.with_values({p: np.array(b) for p, b in self.box.items()})
+            except DesignError as exc:
+                self.box_error = exc
 
-    def run(self, values: Mapping[str, np.ndarray] | None, n: int):
-        """Sweep n variants; returns the SweepResult with the two envelope variants removed."""
+    def run(self, values: Mapping[str, np.ndarray] | None, n: int, what: str = "a variant"):
+        """Sweep n variants; returns the SweepResult with the two envelope variants removed.
+
+        ``what`` names the variants in the error raised when one is non-physical.
+        """
         from .sweep import sweep
 
-        if self.box:
+        if self.box_error is not None and values:
+            raise _non_physical(self.box_error, "the tolerance box (every value at its minimum or maximum)")
+        if self.box and self.box_error is None:
             full = {}
             for p, (lo, hi) in self.box.items():
                 col = np.asarray(values[p], dtype=float) if values and p in values else \
@@ -217,7 +230,12 @@ class _Evaluator:
             if self.progress is not None:
                 self.progress(min(base + max(done - offset, 0), self.total), self.total)
 
-        res = sweep(self.design, full, progress=tick)
+        try:
+            res = sweep(self.design, full, progress=tick)
+        except DesignError as exc:
+            if not values:
+                raise
+            raise _non_physical(exc, what) from None
         self.done = base + n
         if self.progress is not None:
             self.progress(min(self.done, self.total), self.total)
@@ -409,8 +427,10 @@ def sample_values(design: Design, n: int, rng: np.random.Generator, distribution
 
 
 def _non_physical(exc: DesignError, what: str) -> DesignError:
+    """A DesignError from a tolerance variant, re-worded to point at the [tolerances] table."""
+    key = f"{exc.table}.{exc.key}" if exc.table and exc.key and exc.table != "values" else exc.key
     return DesignError(f"{what} is non-physical ({exc.reason}); narrow the [tolerances] entry",
-                       source=exc.source, table="tolerances", key=exc.key)
+                       source=exc.source, table="tolerances", key=key)
 
 
 def check(design: Design, *, corners: bool = False, monte_carlo: int = 0, seed: int | None = None,
@@ -507,10 +527,7 @@ def check(design: Design, *, corners: bool = False, monte_carlo: int = 0, seed: 
     if run_corners:
         cor = _Worst("corners", shape)
         labels = [f"corner {i + 1}" for i in range(n_corners)]
-        try:
-            res = ev.run(corner_vals, n_corners)
-        except DesignError as exc:
-            raise _non_physical(exc, "a corner of the tolerance box") from None
+        res = ev.run(corner_vals, n_corners, "a corner of the tolerance box")
         bus = cor.update(res, ev.headroom(res, corner_vals, n_corners), labels, corner_vals)
         trackers.append(cor)
         analyses["corners"] = {
@@ -531,10 +548,7 @@ def check(design: Design, *, corners: bool = False, monte_carlo: int = 0, seed: 
         for lo in range(0, monte_carlo, MC_CHUNK):
             hi = min(monte_carlo, lo + MC_CHUNK)
             part = {p: a[lo:hi] for p, a in vals.items()}
-            try:
-                res = ev.run(part, hi - lo)
-            except DesignError as exc:
-                raise _non_physical(exc, "a Monte Carlo sample of the tolerance box") from None
+            res = ev.run(part, hi - lo, "a Monte Carlo sample of the tolerance box")
             mc.update(res, ev.headroom(res, part, hi - lo), [f"sample {i + 1}" for i in range(lo, hi)], part)
         trackers.append(mc)
         ci = wilson_interval(mc.failed, monte_carlo)
@@ -589,10 +603,7 @@ def _search(design, ev: _Evaluator, srch: _Worst, paths, pop, seed, generations,
         x = (x[:, None] if x.ndim == 1 else x).T
         n = x.shape[0]
         vals = {p: x[:, j].copy() for j, p in enumerate(paths)}
-        try:
-            res = ev.run(vals, n)
-        except DesignError as exc:
-            raise _non_physical(exc, "a search candidate in the tolerance box") from None
+        res = ev.run(vals, n, "a search candidate in the tolerance box")
         labels = [f"search {counter[0] + i + 1}" for i in range(n)]
         counter[0] += n
         return srch.update(res, ev.headroom(res, vals, n), labels, vals)
