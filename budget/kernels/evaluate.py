@@ -42,20 +42,20 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
     for blk in prange(n_blk):
         b0 = blk * LANES
         bsz = min(LANES, n - b0)
-        waves = np.empty((n_steps, n_out, LANES))
+        waves = np.empty((n_steps, n_out, bsz))
         run_block(b0, bsz, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
                   ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
                   tree_kind, tree_elem, tree_child, tree_parent, ring_len,
                   line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
                   drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps, waves, dc, status)
         m = np.empty(N_METRICS)
-        wv = np.empty((LANES, n_steps))
+        wv = np.empty((bsz, n_steps))
         for r in range(n_rcv):
             o = rcv_out[r]
             node = out_node[o]
             # one sequential pass over the block's samples, transposed for the metrics
             for k in range(n_steps):
-                for bb in range(LANES):
+                for bb in range(bsz):
                     wv[bb, k] = waves[k, o, bb]
             for bb in range(bsz):
                 b = b0 + bb

@@ -42,11 +42,10 @@ STATUS_DC_SINGULAR = 1        # a part of the network has no DC path to ground
 STATUS_CLUSTER_SINGULAR = 2   # a lumped cluster matrix could not be inverted
 STATUS_NOT_FINITE = 3         # the transient produced inf/nan
 
-# Variants per block.  A compile-time constant so every per-variant loop has a
-# fixed trip count that LLVM unrolls and vectorises (8 doubles = two AVX2 or
-# one AVX-512 register).  A partial last block repeats its last variant in the
-# spare lanes and discards them.
-LANES = 8
+# Variants per block in sweeps.  The per-variant loops have a run-time trip count
+# (the block size) so LLVM's loop vectoriser handles them, with run-time alias
+# checks; 32 lanes amortise those checks.  A single simulation runs one lane.
+LANES = 32
 
 
 @kernel
@@ -179,13 +178,13 @@ def _invert(a, m, out):
 
 
 @kernel
-def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
+def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
               ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
               tree_kind, tree_elem, tree_child, tree_parent, ring_len,
               line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
               drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps,
               wave_out, dc_out, status):
-    """Simulate variants b0 .. b0+n_valid-1 (n_valid <= LANES) of one flattened bus.
+    """Simulate variants b0 .. b0+B-1 of one flattened bus.
 
     Values are ``[item, N]`` arrays over all N variants.
 
@@ -194,7 +193,6 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
     states into dc_out[0 or 1, node, b] [V], and a STATUS_* per variant into
     status[b].
     """
-    B = LANES
     nl = line_a.shape[0]
     nr = res_a.shape[0]
     nc = cap_a.shape[0]
@@ -246,26 +244,23 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
     off_d = cl_moff[drv_cl]
 
     for bb in range(B):
-        b = b0 + min(bb, n_valid - 1)
-        lane = bb < n_valid
+        b = b0 + bb
         # DC of the end state (for levels), then of the start state (initial conditions)
         st = dc_state(b, drv_v1[b], drv_r1[b], n_nodes, res_a, res_b, src_node, drv_node, dc_map, n_dc,
                       dc_bw, tree_kind, tree_elem, tree_child, tree_parent, line_a, ind_a,
                       res_r, src_r, src_v, vdc, li, ii, band, rhs_dc, acc)
-        if lane:
-            for n in range(n_nodes):
-                dc_out[1, n, b] = vdc[n]
+        for n in range(n_nodes):
+            dc_out[1, n, b] = vdc[n]
         st2 = dc_state(b, drv_v0[b], drv_r0[b], n_nodes, res_a, res_b, src_node, drv_node, dc_map, n_dc,
                        dc_bw, tree_kind, tree_elem, tree_child, tree_parent, line_a, ind_a,
                        res_r, src_r, src_v, vdc, li, ii, band, rhs_dc, acc)
         for n in range(n_nodes):
             v[n, bb] = vdc[n]
-        if lane:
-            status[b] = STATUS_OK
-            for n in range(n_nodes):
-                dc_out[0, n, b] = vdc[n]
-            if st != STATUS_OK or st2 != STATUS_OK:
-                status[b] = STATUS_DC_SINGULAR
+        status[b] = STATUS_OK
+        for n in range(n_nodes):
+            dc_out[0, n, b] = vdc[n]
+        if st != STATUS_OK or st2 != STATUS_OK:
+            status[b] = STATUS_DC_SINGULAR
         # lines: delays as whole steps + fraction, history filled with the DC state
         for k in range(nl):
             z = line_z0[k, b]
@@ -336,7 +331,7 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
                     amat[(src_node[k] - s0) * (m + 1)] += 1.0 / src_r[k, b]
             if c == drv_cl:
                 amat[l_d * (m + 1)] += 1.0 / drv_r0[b]
-            if not _invert(amat, m, ainv) and lane:
+            if not _invert(amat, m, ainv):
                 status[b] = STATUS_CLUSTER_SINGULAR
             o = cl_moff[c]
             for i in range(m * m):
@@ -364,7 +359,7 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
 
     if record:
         for o in range(out_node.shape[0]):
-            for bb in range(n_valid):
+            for bb in range(B):
                 wave_out[0, o, bb] = v[out_node[o], bb]
 
     # ---- time loop ---------------------------------------------------------------
@@ -413,7 +408,7 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
                 rhs[c, bb] += j_ind[k, bb]
         # driver: Norton blend of the two states over the linear ramp
         for bb in range(B):
-            b = b0 + min(bb, n_valid - 1)
+            b = b0 + bb
             s = t / t_ramp[b]
             if s > 1.0:
                 s = 1.0
@@ -433,7 +428,7 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
         s0 = cl_start[drv_cl]
  
         for bb in range(B):
-            b = b0 + min(bb, n_valid - 1)
+            b = b0 + bb
             s = t / t_ramp[b]
             if s > 1.0:
                 s = 1.0
@@ -468,10 +463,10 @@ def run_block(b0, n_valid, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, re
         if record:
             for o in range(out_node.shape[0]):
                 n = out_node[o]
-                for bb in range(n_valid):
+                for bb in range(B):
                     wave_out[step, o, bb] = v[n, bb]
 
-    for bb in range(n_valid):
+    for bb in range(B):
         b = b0 + bb
         for o in range(out_node.shape[0]):
             if not math.isfinite(v[out_node[o], bb]):
