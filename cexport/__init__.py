@@ -1,0 +1,1 @@
+"""The C face of busbudget: build script, header and C examples (see cexport/README.md)."""
