@@ -1,0 +1,469 @@
+"""The C library end to end: build libbusbudget.so, compile C programs, run them, compare with Python.
+
+The module builds the library into a temporary directory with the documented
+command (``python cexport/build.py --out DIR``), compiles the rig example and
+the C test programs (``cexport/tests/``) with the system C compiler, runs them
+in subprocesses and compares every number they print (``%.17g``, which reads
+back as the same double) with the Python API on the same inputs, with ``==``.
+The Python side of the comparison is recomputed here from ``budget.sweep`` /
+``budget.simulate`` results, not through ``budget.capi``.
+"""
+from __future__ import annotations
+
+import importlib.util
+import math
+import os
+import re
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import budget
+from budget import capi
+from budget.sweep import sweep
+
+pytestmark = pytest.mark.cexport
+
+ROOT = Path(__file__).resolve().parents[1]
+CEXPORT = ROOT / "cexport"
+SHORT = budget.example_path("short-bus")       # CTRL drives MEM1..MEM3 (receivers)
+BACKPLANE = budget.example_path("backplane")   # SLOT1..SLOT8, all transceivers
+CC = os.environ.get("CC") or shutil.which("cc") or shutil.which("gcc")
+CFLAGS = ["-std=c99", "-D_POSIX_C_SOURCE=200809L", "-Wall", "-Wextra", "-Werror", "-pedantic"]
+RUN_TIMEOUT = 300   # s; a cold numba cache makes the first C process compile the kernels
+
+
+def _build_module():
+    spec = importlib.util.spec_from_file_location("cexport_build", CEXPORT / "build.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    return mod
+
+
+BUILD = _build_module()
+HEADER_TEXT = (CEXPORT / "busbudget.h").read_text(encoding="utf-8")
+CONST = BUILD.constants(HEADER_TEXT)
+
+
+def same(a: float, b: float) -> bool:
+    """Bit-for-bit equality of two doubles, NaN equal to NaN."""
+    return (math.isnan(a) and math.isnan(b)) or a == b
+
+
+def child_env(**extra) -> dict:
+    """The environment for a C program: ours, minus settings that would redirect the runtime."""
+    env = {k: v for k, v in os.environ.items() if k not in ("BUSBUDGET_PYTHON", "PYTHONHOME")}
+    env.update(extra)
+    return env
+
+
+def run(exe: Path, *args, env=None, expect: int | None = 0) -> subprocess.CompletedProcess:
+    proc = subprocess.run([str(exe), *map(str, args)], capture_output=True, text=True,
+                          timeout=RUN_TIMEOUT, env=env or child_env())
+    if expect is not None:
+        assert proc.returncode == expect, (f"{exe.name} {args} exited {proc.returncode}\n"
+                                           f"stdout:\n{proc.stdout[-3000:]}\nstderr:\n{proc.stderr[-3000:]}")
+    return proc
+
+
+# ---------------------------------------------------------------------------
+# fixtures: build once, compile once
+
+@pytest.fixture(scope="module")
+def libdir(tmp_path_factory) -> Path:
+    assert CC, "no C compiler found (set CC); the C library tests need one"
+    out = tmp_path_factory.mktemp("libbusbudget")
+    proc = subprocess.run([sys.executable, str(CEXPORT / "build.py"), "--out", str(out)],
+                          capture_output=True, text=True, timeout=RUN_TIMEOUT)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert (out / "libbusbudget.so").is_file() and (out / "busbudget.h").is_file()
+    return out
+
+
+@pytest.fixture(scope="module")
+def programs(libdir) -> dict:
+    sources = {"rig_check": CEXPORT / "examples" / "rig_check.c",
+               "api_probe": CEXPORT / "tests" / "api_probe.c",
+               "threads": CEXPORT / "tests" / "threads.c"}
+    exes = {}
+    for name, src in sources.items():
+        exe = libdir / name
+        cmd = [CC, *CFLAGS, f"-I{libdir}", str(src), f"-L{libdir}", "-lbusbudget", f"-Wl,-rpath,{libdir}",
+               "-pthread", "-lm", "-o", str(exe)]
+        proc = subprocess.run(cmd, capture_output=True, text=True, timeout=120)
+        assert proc.returncode == 0, f"{' '.join(cmd)}\n{proc.stderr}"
+        exes[name] = exe
+    return exes
+
+
+# ---------------------------------------------------------------------------
+# the header and the exports
+
+def test_header_is_the_single_source(libdir):
+    assert (libdir / "busbudget.h").read_bytes() == (CEXPORT / "busbudget.h").read_bytes()
+    nm = shutil.which("nm")
+    assert nm, "nm (binutils) is needed to list the library's exports"
+    out = subprocess.run([nm, "-D", "--defined-only", str(libdir / "libbusbudget.so")],
+                         capture_output=True, text=True, check=True).stdout
+    exported = {line.split()[-1] for line in out.splitlines() if line.split()[-1].startswith("bb_")}
+    assert exported == set(BUILD.functions(HEADER_TEXT))
+
+
+def test_every_function_has_a_comment():
+    lines = HEADER_TEXT.splitlines()
+    names = BUILD.functions(HEADER_TEXT)
+    assert len(names) >= 15
+    for name in names:
+        i = next(k for k, line in enumerate(lines) if re.match(rf"int {name}\(", line))
+        assert lines[i - 1].rstrip().endswith("*/"), f"{name} has no comment right above it"
+
+
+def test_status_codes_never_use_zero_for_success():
+    status = {n: CONST[n] for n in capi.STATUS_NAMES}
+    assert status["BB_NOT_STARTED"] == 0
+    assert status["BB_OK"] > 0 and status["BB_FAIL"] > 0
+    assert all(v < 0 for n, v in status.items() if n.startswith("BB_ERR_"))
+    assert len(set(status.values())) == len(status), "status codes must be distinct"
+    header_status = re.search(r"enum bb_status \{(.*?)\};", BUILD.api_declarations(HEADER_TEXT), re.S).group(1)
+    assert set(re.findall(r"BB_\w+", header_status)) == set(capi.STATUS_NAMES)
+
+
+def test_violation_bits_match_the_kernels():
+    for name, bit in capi.VIOLATION_BITS.items():
+        assert CONST[name] == bit, name
+
+
+@pytest.mark.skipif(shutil.which("g++") is None, reason="no C++ compiler to check the header with")
+def test_header_compiles_as_cpp(libdir):
+    proc = subprocess.run(["g++", "-fsyntax-only", "-Wall", "-Werror", "-x", "c++", f"-I{libdir}", "-"],
+                          input='#include "busbudget.h"\nint main() { bb_result r; return bb_check(1, &r); }\n',
+                          capture_output=True, text=True, timeout=60)
+    assert proc.returncode == 0, proc.stderr
+
+
+def test_runtime_starts_and_reports_version(programs):
+    out = run(programs["api_probe"], "init").stdout
+    assert f"version {CONST['BB_OK']} {CONST['BB_API_VERSION']} {budget.__version__}" in out
+    assert f"header-api {CONST['BB_API_VERSION']}" in out
+    assert f"runtime-info {CONST['BB_OK']}" in out
+    assert str(Path(budget.__file__).parent) in out        # where the package came from
+
+
+# ---------------------------------------------------------------------------
+# numbers: C against Python, bit for bit
+
+def parse_check(stdout: str) -> dict:
+    out = {"set": {}, "taps": [], "rmargin": {}, "table": {}, "param": {}}
+    for line in stdout.splitlines():
+        f = line.split()
+        if f[0] == "set":
+            out["set"][f[1]] = float(f[2])
+            assert int(f[3]) == CONST["BB_OK"]
+        elif f[0] == "check":
+            out["check"] = f[1:]
+        elif f[0] == "tap":
+            out["taps"].append(f[2])
+        elif f[0] == "rmargin":
+            out["rmargin"][int(f[1])] = float(f[2])
+        elif f[0] == "table":
+            out["table"][int(f[1])] = float(f[2])
+        elif f[0] == "param":
+            out["param"][f[1]] = float(f[2])
+    return out
+
+
+CHECK_CASES = [
+    pytest.param(SHORT, ["lines.route.z0=47.5", "parts.hub_ctrl.r_high=21.5"], id="short-bus-pass"),
+    pytest.param(SHORT, ["lines.route.z0=55", "termination.0.r=2"], id="short-bus-fail"),
+    pytest.param(BACKPLANE, ["lines.backplane.z0=52.5", "tap.SLOT3.stub.length=0.031"], id="backplane"),
+]
+
+
+@pytest.mark.parametrize("design_file, settings", CHECK_CASES)
+def test_check_and_margins_match_python(programs, design_file, settings):
+    got = parse_check(run(programs["api_probe"], "check", design_file, *settings).stdout)
+    design = budget.load(design_file).with_values(got["set"])
+    r = sweep(design)
+    names = design.tap_names
+    n = len(names)
+
+    rc, passed, worst, drv, rcv, edge, n_cases, n_failing, violations, drv_name, rcv_name = got["check"]
+    assert int(rc) == (CONST["BB_OK"] if r.passed[0] else CONST["BB_FAIL"])
+    assert int(passed) == int(r.passed[0])
+    assert same(float(worst), float(r.worst_margin[0]))
+    w_drv, w_edge, w_rcv = r.worst_index(0)
+    assert (int(drv), int(rcv), int(edge)) == (names.index(w_drv), names.index(w_rcv), ("rise", "fall").index(w_edge))
+    assert (drv_name, rcv_name) == (w_drv, w_rcv)
+    valid = np.broadcast_to(r.valid[:, None, :], r.margin.shape[1:])
+    assert int(n_cases) == valid.sum()
+    assert int(n_failing) == np.count_nonzero(r.bits[0][valid])
+    assert int(violations) == np.bitwise_or.reduce(r.bits[0][valid])
+
+    assert got["taps"] == list(names)
+    # the full table, indexed [driver tap, edge, receiver tap]; NaN where no such case
+    expected = np.full((n, 2, n), np.nan)
+    for i, d in enumerate(r.drivers):
+        for j, e in enumerate(r.edges):
+            for k, c in enumerate(r.receivers):
+                if c != d:
+                    expected[names.index(d), ("rise", "fall").index(e), names.index(c)] = r.margin[0, i, j, k]
+    assert len(got["table"]) == 2 * n * n
+    for idx, value in got["table"].items():
+        assert same(value, expected.flat[idx]), f"table[{idx}]"
+    for k in range(n):
+        col = expected[:, :, k][~np.isnan(expected[:, :, k])]
+        assert same(got["rmargin"][k], float(col.min()) if col.size else math.nan), f"receiver {names[k]}"
+    assert got["param"] == {p: float(v) for p, v in design.params.items()}
+
+
+@pytest.mark.parametrize("design_file, driver, edge, tap, settings", [
+    pytest.param(SHORT, "CTRL", "fall", "MEM3", ["lines.route.z0=47.5"], id="short-bus-fall"),
+    pytest.param(BACKPLANE, "SLOT1", "rise", "SLOT8", [], id="backplane-rise"),
+])
+def test_waveform_matches_python(programs, design_file, driver, edge, tap, settings):
+    out = run(programs["api_probe"], "wave", design_file, driver, edge, tap, *settings).stdout.splitlines()
+    sets = {f[1]: float(f[2]) for f in (line.split() for line in out) if f[0] == "set"}
+    start = next(i for i, line in enumerate(out) if line.startswith("wave "))
+    n = int(out[start].split()[1])
+    tv = np.array([[float(x) for x in line.split()] for line in out[start + 1:start + 1 + n]])
+    design = budget.load(design_file).with_values(sets) if sets else budget.load(design_file)
+    w = budget.simulate(design, driver, edge)
+    assert n == w.t.shape[0]
+    assert np.array_equal(tv[:, 0], w.t)
+    assert np.array_equal(tv[:, 1], w[tap])
+
+
+def test_batch_matches_python(programs):
+    args = ["batch", SHORT, 24, "lines.route.z0", 35, 65, "termination.0.r", 0.5, 27]
+    out = run(programs["api_probe"], *args).stdout.splitlines()
+    values: dict[str, dict[int, float]] = {}
+    worst, passed, rc = {}, {}, None
+    for f in (line.split() for line in out):
+        if f[0] == "value":
+            values.setdefault(f[2], {})[int(f[1])] = float(f[3])
+        elif f[0] == "variant":
+            worst[int(f[1])], passed[int(f[1])] = float(f[2]), int(f[3])
+        elif f[0] == "batch":
+            rc = int(f[1])
+    cols = {p: np.array([v[i] for i in range(24)]) for p, v in values.items()}
+    r = sweep(budget.load(SHORT), cols, keep="margin")
+    assert [worst[i] for i in range(24)] == list(r.worst_margin)
+    assert [passed[i] for i in range(24)] == [int(x) for x in r.passed]
+    assert 0 < sum(passed.values()) < 24, "the range should hold passing and failing variants"
+    assert rc == CONST["BB_FAIL"]
+
+
+# ---------------------------------------------------------------------------
+# bad input: every case the C program tries, with the status it must get
+
+ERROR_CASES = [
+    # (case name in api_probe.c, expected status, text the message must contain)
+    ("open_file_null_path", "BB_ERR_NULL", "path"),
+    ("open_file_null_handle", "BB_ERR_NULL", "design"),
+    ("open_file_missing", "BB_ERR_FILE", "/nonexistent/board.toml"),
+    ("open_file_nonphysical", "BB_ERR_DESIGN", "z0"),
+    ("open_text_null", "BB_ERR_NULL", "toml"),
+    ("open_text_not_toml", "BB_ERR_DESIGN", "TOML"),
+    ("open_text_incomplete", "BB_ERR_DESIGN", "edge"),
+    ("open_text_not_utf8", "BB_ERR_DESIGN", "UTF-8"),
+    ("close_twice", "BB_ERR_HANDLE", "not open"),
+    ("close_never_opened", "BB_ERR_HANDLE", "987654"),
+    ("set_after_close", "BB_ERR_HANDLE", "not open"),
+    ("check_handle_zero", "BB_ERR_HANDLE", "handle 0"),
+    ("set_null_path", "BB_ERR_NULL", "path"),
+    ("set_unknown_path", "BB_ERR_PATH", "lines.route.zz"),
+    ("set_nan", "BB_ERR_VALUE", "finite"),
+    ("set_infinite", "BB_ERR_VALUE", "finite"),
+    ("set_negative_z0", "BB_ERR_VALUE", "positive"),
+    ("set_zero_length", "BB_ERR_VALUE", "length"),
+    ("get_unknown_path", "BB_ERR_PATH", "parts.nobody.c_pin"),
+    ("get_null_value", "BB_ERR_NULL", "value"),
+    ("param_count_null", "BB_ERR_NULL", "count"),
+    ("param_name_out_of_range", "BB_ERR_ARGUMENT", "100000"),
+    ("param_name_small_buffer", "BB_ERR_SIZE", "bytes"),
+    ("tap_count_null", "BB_ERR_NULL", "count"),
+    ("tap_name_negative_index", "BB_ERR_ARGUMENT", "-1"),
+    ("tap_name_null_buffer", "BB_ERR_NULL", "buf"),
+    ("check_null_result", "BB_ERR_NULL", "result"),
+    ("receiver_margins_null", "BB_ERR_NULL", "margins"),
+    ("receiver_margins_wrong_count", "BB_ERR_SIZE", "n_taps = 4"),
+    ("margin_table_wrong_count", "BB_ERR_SIZE", "= 32"),
+    ("waveform_null_n_samples", "BB_ERR_NULL", "n_samples"),
+    ("waveform_null_driver", "BB_ERR_NULL", "driver"),
+    ("waveform_null_arrays", "BB_ERR_NULL", "is NULL"),
+    ("waveform_unknown_driver", "BB_ERR_ARGUMENT", "U99"),
+    ("waveform_receiver_cannot_drive", "BB_ERR_ARGUMENT", "cannot drive"),
+    ("waveform_bad_edge", "BB_ERR_ARGUMENT", "edge"),
+    ("waveform_unknown_tap", "BB_ERR_ARGUMENT", "MEM9"),
+    ("waveform_small_capacity", "BB_ERR_SIZE", "capacity is 16"),
+    ("batch_null_paths", "BB_ERR_NULL", "paths"),
+    ("batch_null_path_entry", "BB_ERR_NULL", "paths[0]"),
+    ("batch_null_values", "BB_ERR_NULL", "values"),
+    ("batch_null_worst", "BB_ERR_NULL", "worst_margin"),
+    ("batch_zero_paths", "BB_ERR_SIZE", "n_paths"),
+    ("batch_zero_variants", "BB_ERR_SIZE", "n_variants"),
+    ("batch_unknown_path", "BB_ERR_PATH", "lines.route.zz"),
+    ("batch_duplicate_path", "BB_ERR_ARGUMENT", "more than once"),
+    ("batch_nan_value", "BB_ERR_VALUE", "variant 1"),
+    ("batch_negative_z0", "BB_ERR_VALUE", "positive"),
+    ("version_small_text", "BB_ERR_SIZE", "bytes"),
+    ("runtime_info_null", "BB_ERR_NULL", "buf"),
+    ("runtime_info_small", "BB_ERR_SIZE", "bytes"),
+    ("last_error_small_buffer", "BB_ERR_SIZE", "/"),      # the message, cut to 1 byte
+    ("last_error_null", "BB_ERR_NULL", "-"),
+    ("check_non_finite_result", "BB_ERR_SIMULATION", "non-finite"),
+    ("waveform_non_finite_result", "BB_ERR_SIMULATION", "non-finite"),
+    ("success_keeps_message", "BB_OK", "z0: must be positive"),
+]
+
+
+@pytest.fixture(scope="module")
+def error_run(programs, tmp_path_factory):
+    bad = tmp_path_factory.mktemp("designs") / "negative_z0.toml"
+    text = SHORT.read_text(encoding="utf-8")
+    assert 'z0 = "45 ohm"' in text
+    bad.write_text(text.replace('z0 = "45 ohm"', 'z0 = "-45 ohm"'), encoding="utf-8")
+    out = run(programs["api_probe"], "errors", SHORT, bad).stdout
+    cases = {}
+    for line in out.splitlines():
+        if line.startswith("case "):
+            _, name, status, *message = line.split(" ")
+            cases[name] = (int(status), " ".join(message))
+    return out, cases
+
+
+def test_error_table_covers_every_case_and_code(error_run):
+    _, cases = error_run
+    assert set(cases) == {name for name, _, _ in ERROR_CASES}
+    codes = {code for _, code, _ in ERROR_CASES}
+    # BB_ERR_INTERNAL means a bug, so no input can provoke it: see test_unexpected_exceptions_are_internal
+    assert {n for n in capi.STATUS_NAMES if n.startswith("BB_ERR_")} - codes == {"BB_ERR_INTERNAL"}
+
+
+@pytest.mark.parametrize("name, code, text", ERROR_CASES, ids=[c[0] for c in ERROR_CASES])
+def test_bad_input_from_c(error_run, name, code, text):
+    _, cases = error_run
+    status, message = cases[name]
+    assert status == CONST[code], f"{name}: got {status}, message {message!r}"
+    assert text in message
+    assert message.strip(), "an error must come with a message (and a success keeps the last one)"
+
+
+def test_failed_set_leaves_the_design_unchanged(error_run):
+    out, _ = error_run
+    assert "unchanged lines.route.z0 45\n" in out
+
+
+def test_unexpected_exceptions_are_internal():
+    status, message = capi.status_of(ZeroDivisionError("boom"))
+    assert status == "BB_ERR_INTERNAL" and "ZeroDivisionError: boom" in message
+    assert capi.status_of(budget.SimulationError("x"))[0] == "BB_ERR_SIMULATION"
+    assert capi.status_of(budget.ArgumentError("x"))[0] == "BB_ERR_ARGUMENT"
+
+
+# ---------------------------------------------------------------------------
+# threads
+
+def test_threads_get_the_sequential_results(programs):
+    out = run(programs["threads"], SHORT).stdout.splitlines()
+    summary = next(line.split() for line in out if line.startswith("summary"))
+    threads, iterations, mismatches, error_mismatches = map(int, summary[1:])
+    assert threads >= 4 and iterations >= 3
+    assert (mismatches, error_mismatches) == (0, 0)
+    design = budget.load(SHORT)
+    refs = [line.split() for line in out if line.startswith("ref ")]
+    assert len(refs) == threads * iterations
+    for _, _, _, z0, worst in refs:
+        r = sweep(design.with_values({"lines.route.z0": float(z0)}))
+        assert same(float(worst), float(r.worst_margin[0])), f"z0={z0}"
+    batches: dict[int, list] = {}
+    for _, k, _, z0, worst in (line.split() for line in out if line.startswith("batch ")):
+        batches.setdefault(int(k), []).append((float(z0), float(worst)))
+    for rows in batches.values():
+        r = sweep(design, {"lines.route.z0": np.array([z for z, _ in rows])}, keep="margin")
+        assert [w for _, w in rows] == list(r.worst_margin)
+    shared = float(next(line.split()[1] for line in out if line.startswith("shared ")))
+    assert same(shared, float(sweep(design).worst_margin[0]))
+
+
+# ---------------------------------------------------------------------------
+# the rig example
+
+def test_rig_example_passes(programs):
+    proc = run(programs["rig_check"], SHORT, "lines.route.z0=47.9", "parts.hub_ctrl.r_high=21.5", expect=0)
+    r = sweep(budget.load(SHORT).with_values({"lines.route.z0": 47.9, "parts.hub_ctrl.r_high": 21.5}))
+    assert bool(r.passed[0])
+    assert "verdict: PASS" in proc.stdout
+    assert f"worst margin: {r.worst_margin[0]:.4f} V" in proc.stdout
+
+
+def test_rig_example_fails_with_exit_1(programs):
+    proc = run(programs["rig_check"], SHORT, "lines.route.z0=55", "termination.0.r=2", expect=1)
+    r = sweep(budget.load(SHORT).with_values({"lines.route.z0": 55.0, "termination.0.r": 2.0}))
+    assert not bool(r.passed[0])
+    assert "verdict: FAIL" in proc.stdout
+    assert f"worst margin: {r.worst_margin[0]:.4f} V" in proc.stdout
+
+
+@pytest.mark.parametrize("args, text", [
+    pytest.param(["/nonexistent/board.toml", "a=1", "b=2"], "cannot open", id="missing-file"),
+    pytest.param([SHORT, "lines.route.zz=45", "termination.0.r=2"], "lines.route.zz", id="unknown-path"),
+    pytest.param([SHORT, "lines.route.z0=-45", "termination.0.r=2"], "positive", id="non-physical"),
+    pytest.param([SHORT, "lines.route.z0", "termination.0.r=2"], "PATH=VALUE", id="not-a-measurement"),
+])
+def test_rig_example_bad_input_exits_2(programs, args, text):
+    proc = run(programs["rig_check"], *args, expect=2)
+    assert text in proc.stderr
+
+
+# ---------------------------------------------------------------------------
+# the runtime cannot start: every call returns 0, which no caller may read as success
+
+def test_runtime_missing_reads_as_failure(programs, tmp_path):
+    """An environment without busbudget (nor cffi's backend): start-up fails, every call returns 0."""
+    env_dir = tmp_path / "empty-env"
+    base = getattr(sys, "_base_executable", sys.executable)
+    subprocess.run([base, "-m", "venv", "--without-pip", str(env_dir)], check=True, timeout=120)
+    env = child_env(BUSBUDGET_PYTHON=str(env_dir / "bin" / "python"))
+    proc = run(programs["api_probe"], "init", env=env, expect=3)
+    assert proc.stdout.startswith(f"version {CONST['BB_NOT_STARTED']} -1")
+    assert "initialization code failed" in proc.stderr
+    proc = run(programs["api_probe"], "check", SHORT, env=env, expect=3)
+    assert "not-started bb_open_file" in proc.stdout
+    proc = run(programs["rig_check"], SHORT, "lines.route.z0=47.9", "termination.0.r=27", env=env, expect=2)
+    assert "did not start" in proc.stderr
+    proc = run(programs["threads"], SHORT, env=env, expect=3)
+
+
+def test_package_hidden_reads_as_failure(programs, tmp_path):
+    """A module search path that shadows busbudget: the init code fails and says why."""
+    fake = tmp_path / "shadow" / "budget"
+    fake.mkdir(parents=True)
+    (fake / "__init__.py").write_text('raise ImportError("busbudget hidden by the test")\n')
+    env = child_env(PYTHONPATH=str(fake.parent))
+    proc = run(programs["api_probe"], "init", env=env, expect=3)
+    assert "cannot import the busbudget package" in proc.stderr
+    assert "busbudget hidden by the test" in proc.stderr
+
+
+# ---------------------------------------------------------------------------
+# read-only installs: the compiled-kernel cache goes where NUMBA_CACHE_DIR says
+
+@pytest.mark.slow
+def test_kernel_cache_directory_is_configurable(programs, tmp_path):
+    """With NUMBA_CACHE_DIR set, the library compiles into (and later loads from) that directory.
+
+    That is what a read-only install needs.  (The tests run as a user that may
+    write anywhere, so the package directory itself is not made read-only here.)
+    """
+    cache = tmp_path / "kernel-cache"
+    env = child_env(NUMBA_CACHE_DIR=str(cache))
+    proc = run(programs["api_probe"], "init", env=env)
+    assert f"NUMBA_CACHE_DIR {cache}" in proc.stdout
+    got = parse_check(run(programs["api_probe"], "check", SHORT, env=env).stdout)
+    assert same(float(got["check"][2]), float(sweep(budget.load(SHORT)).worst_margin[0]))
+    assert list(cache.rglob("*.nbi")), "no kernel cache index written to NUMBA_CACHE_DIR"
