@@ -128,6 +128,8 @@ class _Builder:
         return self.index[name]
 
     def v(self, x):
+        if isinstance(x, (float, int)):
+            return np.full(self.n, float(x))
         return np.broadcast_to(np.asarray(x, dtype=float), (self.n,))
 
     def line(self, a, b, z0, td):
@@ -147,11 +149,13 @@ class _Builder:
 
 
 def _vmax(x):
-    return float(np.max(x))
+    """Largest value of a scalar or an array over variants."""
+    return float(x) if isinstance(x, (float, int)) else float(np.max(x))
 
 
 def _vmin(x):
-    return float(np.min(x))
+    """Smallest value of a scalar or an array over variants."""
+    return float(x) if isinstance(x, (float, int)) else float(np.min(x))
 
 
 def choose_dt(design: Design, edge: str) -> float:
@@ -422,6 +426,24 @@ def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, 
 
 def _rcm_map(n_groups, gid, res_a, res_b):
     """Map nodes to DC unknowns ordered by reverse Cuthill-McKee; return (map, bandwidth)."""
+    key = (n_groups, gid.tobytes(), res_a.tobytes(), res_b.tobytes())
+    hit = _GRAPH_CACHE.get(("rcm", key))
+    if hit is None:
+        hit = _GRAPH_CACHE[("rcm", key)] = _rcm_map_uncached(n_groups, gid, res_a, res_b)
+        _trim_cache()
+    return hit
+
+
+_GRAPH_CACHE: dict = {}
+
+
+def _trim_cache(limit: int = 256):
+    """Keep the structural cache small (designs that share a topology reuse its entries)."""
+    while len(_GRAPH_CACHE) > limit:
+        _GRAPH_CACHE.pop(next(iter(_GRAPH_CACHE)))
+
+
+def _rcm_map_uncached(n_groups, gid, res_a, res_b):
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import reverse_cuthill_mckee
 
@@ -445,6 +467,15 @@ def _rcm_map(n_groups, gid, res_a, res_b):
 
 def _short_tree(n0, line_a, line_b, ind_a, ind_b):
     """Leaf-first list of spanning-forest edges over the DC shorts (kind 0 line, 1 inductor)."""
+    key = ("tree", n0, line_a.tobytes(), line_b.tobytes(), ind_a.tobytes(), ind_b.tobytes())
+    hit = _GRAPH_CACHE.get(key)
+    if hit is None:
+        hit = _GRAPH_CACHE[key] = _short_tree_uncached(n0, line_a, line_b, ind_a, ind_b)
+        _trim_cache()
+    return hit
+
+
+def _short_tree_uncached(n0, line_a, line_b, ind_a, ind_b):
     adj = [[] for _ in range(n0)]
     for k in range(len(line_a)):
         adj[line_a[k]].append((0, k, int(line_b[k])))
