@@ -224,6 +224,7 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
     qmin = np.empty(nl, dtype=np.int64)
     ntap = np.empty(nl, dtype=np.int64)
     tap_off = np.zeros(nl + 1, dtype=np.int64)
+    pos = np.zeros(nl, dtype=np.int64)
     gz = np.empty((nl, B))
     inv = np.empty((cl_moff[n_cl], B))
     g_cap = np.empty((nc, B))
@@ -369,7 +370,10 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
         for k in range(nl):
             o = ring_off[k]
             r = ring_len[k]
-            s0 = step % r - qmin[k]  # q <= r - 2, so one wrap is enough
+            pos[k] += 1  # ring slot of this step: step modulo r, kept without a division
+            if pos[k] == r:
+                pos[k] = 0
+            s0 = pos[k] - qmin[k]  # q <= r - 2, so one wrap is enough
             if s0 < 0:
                 s0 += r
             for bb in range(B):
@@ -438,11 +442,10 @@ def run_block(b0, B, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, c
                 for i in range(m_d):
                     v[s0 + i, bb] -= inv[off_d + i * m_d + l_d, bb] * scale
         # history updates
-        slot = step
         for k in range(nl):
             o = ring_off[k]
             r = ring_len[k]
-            sl = slot % r
+            sl = pos[k]
             a = line_a[k]
             c = line_b[k]
             for bb in range(B):
