@@ -13,7 +13,6 @@
  * runtime did not start.
  */
 #include <pthread.h>
-#include <sched.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -28,6 +27,7 @@ static const char *design_file;
 static bb_handle shared;
 static pthread_once_t shared_once = PTHREAD_ONCE_INIT;
 static int shared_status;
+static pthread_barrier_t barrier;   /* lines the threads up around their error calls */
 
 struct work {
     int index;
@@ -46,11 +46,10 @@ static const char *wave_tap(int index) { return index % 3 == 0 ? "MEM1" : index 
 
 static void open_shared(void) { shared_status = bb_open_file(design_file, &shared); }
 
-static int bad(struct work *w, int status)
+static void bad(struct work *w, int status)
 {
     if (w->status == 0)
         w->status = status == 0 ? -100 : status;   /* -100: the runtime did not start */
-    return 0;
 }
 
 /* sum of v over the waveform of `tap` (CTRL driving a rising edge) */
@@ -86,44 +85,48 @@ static int batch_run(bb_handle h, int index, double *worst)
 static void *run(void *arg)
 {
     struct work *w = arg;
-    bb_handle own;
+    bb_handle own = 0;
     bb_result r;
     char wrong_path[64], message[BB_ERROR_SIZE];
     int it, status;
 
     if ((status = bb_open_file(design_file, &own)) != BB_OK)
-        return (void *)(long)bad(w, status);
+        bad(w, status);
     pthread_once(&shared_once, open_shared);
     if (shared_status != BB_OK)
-        return (void *)(long)bad(w, shared_status);
+        bad(w, shared_status);
 
+    /* after a failure a thread still walks through the barriers, so no other waits forever */
     for (it = 0; it < ITERATIONS; it++) {
-        if ((status = bb_set(own, "lines.route.z0", z0_of(w->index, it))) != BB_OK)
-            return (void *)(long)bad(w, status);
-        status = bb_check(own, &r);
-        if (status != BB_OK && status != BB_FAIL)
-            return (void *)(long)bad(w, status);
-        w->worst[it] = r.worst_margin;
+        if (w->status == 0 && (status = bb_set(own, "lines.route.z0", z0_of(w->index, it))) != BB_OK)
+            bad(w, status);
+        if (w->status == 0) {
+            status = bb_check(own, &r);
+            if (status != BB_OK && status != BB_FAIL)
+                bad(w, status);
+            w->worst[it] = r.worst_margin;
+        }
+        if (w->status == 0) {
+            status = bb_check(shared, &r);
+            if (status != BB_OK && status != BB_FAIL)
+                bad(w, status);
+            w->shared_worst[it] = r.worst_margin;
+        }
 
-        status = bb_check(shared, &r);
-        if (status != BB_OK && status != BB_FAIL)
-            return (void *)(long)bad(w, status);
-        w->shared_worst[it] = r.worst_margin;
-
-        /* an error of this thread, read back after the others had time to call */
+        /* every thread fails a call, then every thread reads its message back:
+           with one message for all threads, all but one would read a wrong one */
         snprintf(wrong_path, sizeof wrong_path, "no.such.path.thread%d", w->index);
         status = bb_set(own, wrong_path, 1.0);
-        if (status != BB_ERR_PATH)
-            return (void *)(long)bad(w, status);
-        sched_yield();
+        pthread_barrier_wait(&barrier);
         bb_last_error(message, sizeof message);
-        if (strstr(message, wrong_path) == NULL)
+        if (status != BB_ERR_PATH || strstr(message, wrong_path) == NULL)
             w->error_mismatches++;
+        pthread_barrier_wait(&barrier);
     }
-    if ((status = wave_sum(shared, wave_tap(w->index), &w->wave_sum, &w->wave_n)) != BB_OK)
-        return (void *)(long)bad(w, status);
-    if ((status = batch_run(own, w->index, w->batch_worst)) != BB_OK)
-        return (void *)(long)bad(w, status);
+    if (w->status == 0 && (status = wave_sum(shared, wave_tap(w->index), &w->wave_sum, &w->wave_n)) != BB_OK)
+        bad(w, status);
+    if (w->status == 0 && (status = batch_run(own, w->index, w->batch_worst)) != BB_OK)
+        bad(w, status);
     bb_close(own);
     return NULL;
 }
@@ -142,6 +145,7 @@ int main(int argc, char **argv)
     }
     design_file = argv[1];
     memset(work, 0, sizeof work);
+    pthread_barrier_init(&barrier, NULL, THREADS);
     for (i = 0; i < THREADS; i++) {
         work[i].index = i;
         pthread_create(&tid[i], NULL, run, &work[i]);
