@@ -19,8 +19,8 @@ How the pieces fit:
   :mod:`budget.capi` from the installed package (real module files, so numba
   can cache the kernels) and binds it to the exported functions.
 - The library embeds the interpreter that runs this script.  Its executable
-  path is baked in (a constructor hands it to Python before start-up), so the
-  embedded runtime finds the same standard library and site-packages (a
+  path is baked in and handed to Python at start-up (see ``START_PYTHON``), so
+  the embedded runtime finds the same standard library and site-packages (a
   virtual environment included) whatever the host's PATH.  ``BUSBUDGET_PYTHON``
   overrides it at run time.  libpython is found through an rpath to this
   interpreter's library directory.
@@ -91,6 +91,11 @@ def _c_string(value: str) -> str:
 # Runs once, inside the embedded interpreter, at the first call into the library.
 INIT_CODE = """\
 import sys
+from MODULE import ffi, lib
+_problem = ffi.string(lib.bb_start_problem()).decode("utf-8", "replace")
+if _problem:
+    sys.stderr.write("libbusbudget: %s\\n" % _problem)
+    raise RuntimeError(_problem)
 try:
     import budget.capi
 except BaseException as exc:
@@ -101,45 +106,89 @@ except BaseException as exc:
         "  of another one holding busbudget, numpy and numba in BUSBUDGET_PYTHON.\\n"
         % (sys.executable, type(exc).__name__, exc, sys.path))
     raise
-from MODULE import ffi, lib
 budget.capi.bind(ffi, lib)
 """.replace("MODULE", MODULE)
 
+# cffi starts the interpreter with one call, Py_InitializeEx(0), inside its generated
+# code.  The build renames that call (a -D macro) to START_PYTHON below, which
+#  - says which python executable the interpreter stands for (PyConfig.program_name),
+#    so it finds that installation's standard library and site-packages (a virtual
+#    environment's pyvenv.cfg included) instead of guessing from the host's PATH;
+#  - refuses to hand CPython a setting it cannot start from (PYTHONHOME without a
+#    standard library, a missing BUSBUDGET_PYTHON): CPython would exit the host
+#    process.  It starts the build environment's interpreter, isolated from the
+#    environment variables, and the init code then fails on purpose, so every call
+#    returns 0 and stderr says why.
+START_PYTHON = "busbudget_start_python_"
+
 # C code compiled into the library besides cffi's generated wrappers.
 C_SOURCE = """\
+#include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
 #include "busbudget.h"
 
 /* The python executable of the environment the library was built in. */
 static const char bb_build_python[] = BUILD_PYTHON;
 
-/* Before the embedded interpreter starts (at the first call), tell it which
-   python executable it stands for, so that it finds that installation's
-   standard library and site-packages (a virtual environment's pyvenv.cfg
-   included) instead of guessing from the host's PATH.  BUSBUDGET_PYTHON
-   overrides the baked path.  Skipped when the host process already runs Python. */
-#if defined(__GNUC__)
-#pragma GCC diagnostic push
-#pragma GCC diagnostic ignored "-Wdeprecated-declarations"
-__attribute__((constructor))
-#endif
-static void bb_choose_python(void)
+/* Why the runtime must not be used ("" if nothing is wrong); read by the init code. */
+static char bb_problem[2048];
+
+static const char *bb_start_problem(void) { return bb_problem; }
+
+/* Does PYTHONHOME ("prefix" or "prefix:exec_prefix") hold this Python's standard library? */
+static int bb_home_has_stdlib(const char *home)
 {
-    const char *exe;
-    wchar_t *wexe;
-    if (Py_IsInitialized())
-        return;
-    exe = getenv("BUSBUDGET_PYTHON");
-    if (exe == NULL || exe[0] == 0)
-        exe = bb_build_python;
-    wexe = Py_DecodeLocale(exe, NULL);   /* kept for the life of the process */
-    if (wexe != NULL)
-        Py_SetProgramName(wexe);
+    char landmark[4096];
+    int n = (int)strcspn(home, ":");
+    snprintf(landmark, sizeof landmark, "%.*s/lib/python%d.%d/os.py", n, home, PY_MAJOR_VERSION,
+             PY_MINOR_VERSION);
+    return access(landmark, R_OK) == 0;
 }
-#if defined(__GNUC__)
-#pragma GCC diagnostic pop
-#endif
-"""
+
+void START_PYTHON(int initsigs)
+{
+    PyConfig config;
+    PyStatus status;
+    const char *exe = getenv("BUSBUDGET_PYTHON"), *home = getenv("PYTHONHOME");
+    int isolated = 0;
+
+    if (exe == NULL || exe[0] == 0) {
+        exe = bb_build_python;
+        if (access(exe, X_OK) != 0)
+            snprintf(bb_problem, sizeof bb_problem, "the python executable the library was built "
+                     "with, %s, is gone; rebuild the library or set BUSBUDGET_PYTHON", exe);
+    }
+    else if (access(exe, X_OK) != 0) {
+        snprintf(bb_problem, sizeof bb_problem, "BUSBUDGET_PYTHON=%s is not an executable file", exe);
+        exe = bb_build_python;
+        isolated = 1;
+    }
+    if (home != NULL && home[0] != 0 && !bb_home_has_stdlib(home)) {
+        snprintf(bb_problem, sizeof bb_problem, "PYTHONHOME=%s holds no Python %d.%d standard library "
+                 "(lib/python%d.%d/os.py); unset it or point it at the installation busbudget runs in",
+                 home, PY_MAJOR_VERSION, PY_MINOR_VERSION, PY_MAJOR_VERSION, PY_MINOR_VERSION);
+        exe = bb_build_python;
+        isolated = 1;
+    }
+    if (isolated)
+        PyConfig_InitIsolatedConfig(&config);
+    else
+        PyConfig_InitPythonConfig(&config);
+    config.install_signal_handlers = initsigs;
+    config.parse_argv = 0;
+    status = PyConfig_SetBytesString(&config, &config.program_name, exe);
+    if (!PyStatus_Exception(status))
+        status = Py_InitializeFromConfig(&config);
+    PyConfig_Clear(&config);
+    if (PyStatus_Exception(status))
+        Py_ExitStatusException(status);   /* what Py_InitializeEx does; nothing else is left */
+}
+""".replace("START_PYTHON", START_PYTHON)
+
+# Declarations of C helpers the init code calls (not part of the public API).
+INTERNAL_CDEF = "static const char *bb_start_problem(void);"
 
 
 def check_python() -> None:
@@ -170,11 +219,13 @@ def build(out: Path = DEFAULT_OUT, *, verbose: bool = False) -> Path:
 
     ffi = cffi.FFI()
     ffi.embedding_api(api_declarations(header_text))
+    ffi.cdef(INTERNAL_CDEF)
     libdir = sysconfig.get_config_var("LIBDIR")
     ffi.set_source(
         MODULE,
         C_SOURCE.replace("BUILD_PYTHON", _c_string(sys.executable)),
         include_dirs=[str(HERE)],
+        define_macros=[("Py_InitializeEx", START_PYTHON)],
         extra_link_args=[f"-Wl,-rpath,{libdir}"] if libdir else [],
     )
     ffi.embedding_init_code(INIT_CODE)

@@ -13,7 +13,10 @@
  *   - the Python environment the library was built from (interpreter, numpy,
  *     numba, busbudget).  Its python executable is baked in at build time;
  *     set BUSBUDGET_PYTHON=/path/to/bin/python (same X.Y version) to use
- *     another environment.  PYTHONHOME / PYTHONPATH are honoured as usual.
+ *     another environment.  PYTHONHOME / PYTHONPATH are honoured as usual,
+ *     except that a PYTHONHOME without a standard library (or a missing
+ *     BUSBUDGET_PYTHON) stops the runtime from starting, with a message,
+ *     instead of letting CPython exit the host process.
  *     bb_runtime_info() says what was found.
  *   - a directory for numba's compiled-kernel cache.  By default numba writes
  *     next to the package's modules; on a read-only install set

@@ -109,8 +109,11 @@ def test_header_is_the_single_source(libdir):
     assert nm, "nm (binutils) is needed to list the library's exports"
     out = subprocess.run([nm, "-D", "--defined-only", str(libdir / "libbusbudget.so")],
                          capture_output=True, text=True, check=True).stdout
-    exported = {line.split()[-1] for line in out.splitlines() if line.split()[-1].startswith("bb_")}
-    assert exported == set(BUILD.functions(HEADER_TEXT))
+    exported = {line.split()[-1] for line in out.splitlines() if line.split()[1] in "TDB"}
+    api = {name for name in exported if name.startswith("bb_")}
+    assert api == set(BUILD.functions(HEADER_TEXT))
+    # besides the API: cffi's module init and the interpreter starter (see cexport/build.py)
+    assert exported - api == {f"PyInit_{BUILD.MODULE}", BUILD.START_PYTHON}
 
 
 def test_every_function_has_a_comment():
@@ -423,20 +426,35 @@ def test_rig_example_bad_input_exits_2(programs, args, text):
 # ---------------------------------------------------------------------------
 # the runtime cannot start: every call returns 0, which no caller may read as success
 
-def test_runtime_missing_reads_as_failure(programs, tmp_path):
-    """An environment without busbudget (nor cffi's backend): start-up fails, every call returns 0."""
+def _empty_env(tmp_path) -> str:
+    """python of a fresh virtual environment without busbudget (nor cffi's backend)."""
     env_dir = tmp_path / "empty-env"
     base = getattr(sys, "_base_executable", sys.executable)
     subprocess.run([base, "-m", "venv", "--without-pip", str(env_dir)], check=True, timeout=120)
-    env = child_env(BUSBUDGET_PYTHON=str(env_dir / "bin" / "python"))
+    return str(env_dir / "bin" / "python")
+
+
+@pytest.mark.parametrize("setting, stderr_text", [
+    pytest.param("empty-env", "initialization code failed", id="environment-without-the-package"),
+    pytest.param("BUSBUDGET_PYTHON=/nonexistent/bin/python", "is not an executable file", id="python-missing"),
+    pytest.param("PYTHONHOME=/nonexistent", "holds no Python", id="pythonhome-without-stdlib"),
+])
+def test_runtime_not_started_reads_as_failure(programs, tmp_path, setting, stderr_text):
+    """The runtime cannot start: every call returns 0 (BB_NOT_STARTED), the host process lives on.
+
+    (Without the library's own start-up checks a PYTHONHOME without a standard
+    library makes CPython exit the whole host process.)
+    """
+    name, value = ("BUSBUDGET_PYTHON", _empty_env(tmp_path)) if setting == "empty-env" else setting.split("=")
+    env = child_env(**{name: value})
     proc = run(programs["api_probe"], "init", env=env, expect=3)
     assert proc.stdout.startswith(f"version {CONST['BB_NOT_STARTED']} -1")
-    assert "initialization code failed" in proc.stderr
+    assert stderr_text in proc.stderr
     proc = run(programs["api_probe"], "check", SHORT, env=env, expect=3)
     assert "not-started bb_open_file" in proc.stdout
     proc = run(programs["rig_check"], SHORT, "lines.route.z0=47.9", "termination.0.r=27", env=env, expect=2)
     assert "did not start" in proc.stderr
-    proc = run(programs["threads"], SHORT, env=env, expect=3)
+    run(programs["threads"], SHORT, env=env, expect=3)
 
 
 def test_package_hidden_reads_as_failure(programs, tmp_path):
