@@ -72,6 +72,7 @@ SCHEMA = "busbudget.check/1"
 DISTRIBUTIONS = ("uniform", "normal")
 MAX_CORNERS = 4096
 MC_CHUNK = 510          # Monte Carlo variants per sweep call (+2 envelope variants = 512)
+PROGRESS_CHUNK = 256    # variants per progress report inside a sweep call
 SEARCH_GENERATIONS = 20
 # Violating results sort before passing ones: their key is lowered by this many
 # volts, far more than any physical headroom.
@@ -231,7 +232,7 @@ class _Evaluator:
                 self.progress(min(base + max(done - offset, 0), self.total), self.total)
 
         try:
-            res = sweep(self.design, full, progress=tick)
+            res = sweep(self.design, full, progress=tick, chunk=PROGRESS_CHUNK)
         except DesignError as exc:
             if not values:
                 raise

@@ -28,6 +28,7 @@ class ProgressBar:
         self.start = time.monotonic()
         self._last = -1.0
         self._drawn = False
+        self._shown = None
 
     def __call__(self, done: int, total: int) -> None:
         if not self.enabled:
@@ -35,12 +36,15 @@ class ProgressBar:
         now = time.monotonic()
         if done < total and now - self._last < self.interval:
             return
+        if (done, total) == self._shown:
+            return
         self._last = now
+        self._shown = (done, total)
         frac = 0.0 if total <= 0 else min(max(done / total, 0.0), 1.0)
         filled = int(round(frac * self.width))
         elapsed = now - self.start
         eta = ""
-        if 0 < frac < 1 and elapsed > 1:
+        if 0.05 <= frac < 1 and elapsed > 1:
             eta = f", about {elapsed * (1 - frac) / frac:.0f} s left"
         line = f"{self.label} [{'#' * filled}{'.' * (self.width - filled)}] {done}/{total}{eta}"
         self.stream.write("\r" + line.ljust(79))

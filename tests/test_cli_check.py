@@ -133,6 +133,7 @@ def test_bad_arguments_exit_2(capsys, argv, message):
 # ---------------------------------------------------------------------------
 # the real console script, and the progress bar
 
+@pytest.mark.slow
 def test_console_script_exit_codes_and_quiet_stderr(tmp_path):
     exe = Path(sys.executable).with_name("busbudget")
     if not exe.exists():
