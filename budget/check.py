@@ -41,11 +41,10 @@ result also fails on the kernel's other violations (never valid,
 non-monotonic edge, not settled in the window).  "Worst" orders results with
 a violation before results without one, then by lowest headroom.
 
-Time step and window are the same for every variant of a check: each sweep
-carries two extra variants at the low and high end of every toleranced value
-(dropped from the results), so the engine's envelope-based choices of time
-step, window and line modelling never differ between the nominal design, a
-corner, a sample and a search candidate.
+Time step and window are the same for every variant of a check: the engine
+chooses them (and the line modelling) from the whole tolerance box
+(:func:`budget.netlist.tolerance_envelope`), never from the variants that
+happen to share a sweep.
 
 References
 ----------
@@ -71,7 +70,7 @@ from .model import Design
 SCHEMA = "busbudget.check/1"
 DISTRIBUTIONS = ("uniform", "normal")
 MAX_CORNERS = 4096
-MC_CHUNK = 510          # Monte Carlo variants per sweep call (+2 envelope variants = 512)
+MC_CHUNK = 512          # Monte Carlo variants per sweep call
 PROGRESS_CHUNK = 256    # variants per progress report inside a sweep call
 SEARCH_GENERATIONS = 20
 # Violating results sort before passing ones: their key is lowered by this many
@@ -182,7 +181,7 @@ class CheckReport:
 # evaluation helpers
 
 class _Evaluator:
-    """Runs sweeps with a fixed envelope, counts progress and keeps the per-analysis worst results."""
+    """Runs sweeps, counts progress and keeps the per-analysis worst results."""
 
     def __init__(self, design: Design, progress, total: int):
         from .sweep import sweep  # noqa: F401  (import errors surface early)
@@ -195,44 +194,19 @@ class _Evaluator:
         part_of = {t.name: t.part for t in design.taps}
         self.receivers = design.receivers
         self.rcv_parts = [part_of[r] for r in self.receivers]
-        # the two envelope variants must themselves be physical designs; if not,
-        # the nominal design runs alone and any tolerance analysis is refused
-        self.box_error = None
-        if self.box:
-            try:
-                design.with_values({p: np.array(b) for p, b in self.box.items()})
-            except DesignError as exc:
-                self.box_error = exc
 
     def run(self, values: Mapping[str, np.ndarray] | None, n: int, what: str = "a variant"):
-        """Sweep n variants; returns the SweepResult with the two envelope variants removed.
-
-        ``what`` names the variants in the error raised when one is non-physical.
-        """
+        """Sweep n variants; ``what`` names them in the error raised when one is non-physical."""
         from .sweep import sweep
 
-        if self.box_error is not None and values:
-            raise _non_physical(self.box_error, "the tolerance box (every value at its minimum or maximum)")
-        if self.box and self.box_error is None:
-            full = {}
-            for p, (lo, hi) in self.box.items():
-                col = np.asarray(values[p], dtype=float) if values and p in values else \
-                    np.full(n, float(self.design.params[p]))
-                full[p] = np.concatenate(([lo, hi], col))
-            for p, a in (values or {}).items():
-                if p not in full:
-                    full[p] = np.concatenate(([a[0], a[0]], a))
-            offset, n_run = 2, n + 2
-        else:
-            full, offset, n_run = (dict(values) if values else None), 0, n
         base = self.done
 
         def tick(done, total):
             if self.progress is not None:
-                self.progress(min(base + max(done - offset, 0), self.total), self.total)
+                self.progress(min(base + done, self.total), self.total)
 
         try:
-            res = sweep(self.design, full, progress=tick, chunk=PROGRESS_CHUNK)
+            res = sweep(self.design, dict(values) if values else None, progress=tick, chunk=PROGRESS_CHUNK)
         except DesignError as exc:
             if not values:
                 raise
@@ -240,12 +214,6 @@ class _Evaluator:
         self.done = base + n
         if self.progress is not None:
             self.progress(min(self.done, self.total), self.total)
-        if offset:
-            res.margin = res.margin[offset:]
-            res.bits = res.bits[offset:]
-            res.metrics = res.metrics[offset:]
-            res.levels = res.levels[offset:]
-            res.n_variants = n
         return res
 
     def limits(self, values, n):

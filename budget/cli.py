@@ -195,9 +195,17 @@ def _analysis_options(parser) -> None:
 
 
 def _seconds(text: str) -> float:
+    """argparse type: a time such as '5 ps' or a plain number of seconds."""
+    from .errors import DesignError
     from .units import parse_quantity
 
-    return parse_quantity(text, "time", source="command line", key="time")
+    try:
+        value = parse_quantity(text, "time", source="command line")
+    except DesignError as exc:
+        raise argparse.ArgumentTypeError(exc.reason) from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a positive time")
+    return value
 
 
 def build_parser() -> argparse.ArgumentParser:

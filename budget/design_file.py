@@ -84,7 +84,28 @@ def loads(text: str, *, source: str = "<string>") -> Design:
     except tomllib.TOMLDecodeError as exc:
         raise DesignError(f"not valid TOML ({exc})", source=source) from None
     structure, params = _parse(doc, source)
-    return _build(structure, params)
+    design = _build(structure, params)
+    _check_tolerance_box(design)
+    return design
+
+
+def _check_tolerance_box(design: Design) -> None:
+    """Every value of the tolerance box must be physical: each path at both ends, then all together."""
+    box = design.tolerances
+    if not box:
+        return
+    for path, (lo, hi) in box.items():
+        try:
+            rebuild(design, {path: np.array([lo, hi])})
+        except DesignError as exc:
+            raise DesignError(f"the tolerance range [{lo:g}, {hi:g}] reaches a non-physical value: {exc.reason}",
+                              source=design.source, table="tolerances", key=path) from None
+    try:
+        rebuild(design, {p: np.array(b) for p, b in box.items()})
+    except DesignError as exc:
+        raise DesignError(f"with every tolerance at its minimum or maximum the design is non-physical: "
+                          f"[{exc.table}] {exc.key}: {exc.reason}", source=design.source, table="tolerances",
+                          key=exc.key) from None
 
 
 def rebuild(design: Design, values: Mapping[str, Any], *, source: str | None = None) -> Design:

@@ -158,6 +158,43 @@ def _vmin(x):
     return float(x) if isinstance(x, (float, int)) else float(np.min(x))
 
 
+_ENVELOPES: dict = {}
+
+
+def tolerance_envelope(design: Design, values=None) -> Design:
+    """A 2-variant design spanning the tolerance box, the current values and ``values``.
+
+    Variant 0 holds every toleranced or swept value at its minimum, variant 1
+    at its maximum.  The automatic time step, window and line modelling are
+    chosen from it, so they never depend on which variants share a batch.
+    Without tolerances or ``values`` the design itself is returned.
+    """
+    paths = set(design.tolerances) | set(values or ())
+    if not paths:
+        return design
+    key = None
+    if not values and design.batch_size is None:
+        key = (id(design.structure), tuple(design.params.values()))
+        hit = _ENVELOPES.get(key)
+        if hit is not None and hit[0] is design.structure:
+            return hit[1]
+    span = {}
+    for p in paths:
+        lo = hi = None
+        for x in ([design.params[p]] + ([values[p]] if values and p in values else [])):
+            lo = _vmin(x) if lo is None else min(lo, _vmin(x))
+            hi = _vmax(x) if hi is None else max(hi, _vmax(x))
+        if p in design.tolerances:
+            lo, hi = min(lo, design.tolerances[p][0]), max(hi, design.tolerances[p][1])
+        span[p] = np.array([lo, hi])
+    env = design.with_values(span)
+    if key is not None:
+        if len(_ENVELOPES) > 64:
+            _ENVELOPES.clear()
+        _ENVELOPES[key] = (design.structure, env)
+    return env
+
+
 def choose_dt(design: Design, edge: str) -> float:
     """Automatic time step [s] for ``edge`` (or the design's ``bus.dt``).
 
@@ -203,8 +240,9 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
 
     dt [s] and t_stop [s] override the design's own and the automatic choice.
     ``envelope`` (same structure, values covering a whole sweep) makes the
-    structural choices (lumped or not, loss sections) so that every chunk of a
-    sweep gets the same netlist; default: ``design`` itself.
+    automatic choices (time step, window, lumped or not, loss sections);
+    default: :func:`tolerance_envelope`, so the nominal design, every corner,
+    sample and measured unit inside the tolerance box get the same netlist.
     """
     if edge not in EDGES:
         raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {edge!r}")
@@ -214,9 +252,10 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
         raise ArgumentError(f"tap {driver!r} cannot drive: its part {dpart.name!r} has role {dpart.role!r}; "
                             f"taps that can drive: {', '.join(design.drivers) or 'none'}")
     n = design.batch_size or 1
-    dt = float(dt if dt is not None else choose_dt(design, edge))
+    env = envelope if envelope is not None else tolerance_envelope(design)
+    dt = float(dt if dt is not None else choose_dt(env, edge))
     if t_stop is None:
-        t_stop = design.bus.t_stop if design.bus.t_stop is not None else default_t_stop(design, edge)
+        t_stop = design.bus.t_stop if design.bus.t_stop is not None else default_t_stop(env, edge)
     t_stop = _vmax(t_stop)
     if not (dt > 0 and t_stop > dt):
         raise ArgumentError(f"need 0 < dt < t_stop, got dt={dt:g} s, t_stop={t_stop:g} s")
@@ -229,8 +268,6 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     notes = []
     for name in design.nodes:
         b.node(name)
-
-    env = envelope if envelope is not None else design
 
     def line_values(d, line_name, length):
         lt = d.lines[line_name]

@@ -22,7 +22,7 @@ from .errors import ArgumentError
 from .kernels import metrics as mk
 from .kernels.evaluate import evaluate_chunk
 from .model import Design
-from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time
+from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
 from .simulate import check_status
 
 DEFAULT_CHUNK = 4096
@@ -91,16 +91,13 @@ def _as_values(design: Design, values: Mapping[str, Sequence[float]] | None):
     return out, n
 
 
-def _envelope(design: Design, values: dict) -> Design:
-    """A 2-variant design holding the minimum and maximum of every swept value."""
-    if not values:
-        return design
-    return design.with_values({p: np.array([a.min(), a.max()]) for p, a in values.items()})
-
-
 def plan(design: Design, values: dict, edges, dt=None, t_stop=None):
-    """Time step and window [s] per edge, fixed for a whole sweep (from the value envelope)."""
-    env = _envelope(design, values)
+    """Time step and window [s] per edge, fixed for a whole sweep.
+
+    Chosen from :func:`budget.netlist.tolerance_envelope` over the tolerance box
+    and the swept values, so a variant gives the same result in any batch.
+    """
+    env = tolerance_envelope(design, values)
     dts, tss = {}, {}
     for e in edges:
         dts[e] = float(dt) if dt is not None else choose_dt(env, e)
@@ -238,10 +235,10 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
     values, n = _as_values(design, values)
     edges = tuple(edges)
     receivers = design.receivers
-    env, dts, tss = plan(design, values, edges, dt, t_stop)
     # validate every value once, up front (each chunk is validated again when built)
     if values:
         design.with_values(values)
+    env, dts, tss = plan(design, values, edges, dt, t_stop)
     nd, ne, nr = len(drivers), len(edges), len(receivers)
     margin = np.empty((n, nd, ne, nr))
     bits = np.empty((n, nd, ne, nr), dtype=np.int64)

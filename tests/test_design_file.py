@@ -218,3 +218,24 @@ def test_design_pickles_for_cluster_workers():
 def test_bundled_examples_load(name):
     d = budget.example(name)
     assert len(d.taps) >= 3 and d.drivers and d.receivers
+
+
+def test_tolerance_box_must_stay_physical():
+    text = edit('"lines.trunk.z0" = "10%"', '"lines.trunk.z0" = "10%"\n"parts.rx.c_pin" = ["-1 pF", "3 pF"]')
+    with pytest.raises(DesignError) as info:
+        budget.loads(text, source="box.toml")
+    msg = str(info.value)
+    assert "box.toml: [tolerances] parts.rx.c_pin" in msg and "non-physical" in msg
+
+
+def test_automatic_step_and_window_come_from_the_tolerance_box():
+    """The nominal design, a corner and a measured unit inside the box get the same time axis."""
+    from budget.netlist import flatten
+
+    d = budget.loads(edit('"lines.trunk.z0" = "10%"', '"lines.trunk.z0" = "10%"\n"parts.xcvr.c_pin" = ["1 pF", "4 pF"]'))
+    nets = [flatten(x, "U1", "rise") for x in (d, d.with_values({"parts.xcvr.c_pin": 4e-12}),
+                                                 d.with_values({"parts.xcvr.c_pin": 1.5e-12}))]
+    assert len({(n.dt, n.n_steps) for n in nets}) == 1
+    # a measured value outside the box widens the envelope for that design only
+    wide = flatten(d.with_values({"parts.xcvr.c_pin": 0.2e-12}), "U1", "rise")
+    assert wide.dt < nets[0].dt

@@ -253,6 +253,7 @@ def test_progress_counts_up_to_the_total():
     assert done == sorted(done)
 
 
-def test_a_non_physical_tolerance_box_does_not_stop_a_nominal_check():
+def test_a_non_physical_tolerance_box_is_rejected_when_the_file_is_read():
     text = KNOWN_RATE.replace('["1.9 V", "2.3 V"]', '["0.5 V", "2.3 V"]')
-    assert check(budget.loads(text)).passed
+    with pytest.raises(DesignError, match=r"\[tolerances\]"):
+        budget.loads(text)
