@@ -11,7 +11,7 @@ Measures, on the short-bus example (one driver, three receivers, both edges):
    start + imports) and to the first bb_check (plus kernel cache load), and
    the whole process's wall time next to a Python process doing the same;
 2. a single check: bb_set + bb_check from C against Design.with_values +
-   sweep in Python (the same kernel path), per call;
+   sweep in Python (the same kernel path), median time per call;
 3. a 10,000-variant batch: one bb_batch from C against one sweep(...,
    keep="margin") in Python.
 
@@ -92,15 +92,20 @@ def run_py_first(design: Path) -> tuple[float, float]:
 
 
 def python_checks(design, n: int) -> tuple[float, float]:
-    """Per-call time [s] of with_values + sweep + the summary bb_check gives, and the checksum."""
+    """Median time [s] of with_values + sweep + the summary bb_check gives, and the checksum.
+
+    Like the C driver's bb_set on one handle, each value replaces the previous one.
+    """
     from budget.sweep import sweep
-    total = 0.0
-    t0 = time.perf_counter()
+    total, per_call = 0.0, []
     for i in range(n):
-        r = sweep(design.with_values({"lines.route.z0": check_z0(i)}))
+        t0 = time.perf_counter()
+        design = design.with_values({"lines.route.z0": check_z0(i)})
+        r = sweep(design)
         r.passed[0], r.worst_index(0)
+        per_call.append(time.perf_counter() - t0)
         total += float(r.worst_margin[0])
-    return (time.perf_counter() - t0) / n, total
+    return statistics.median(per_call), total
 
 
 def python_batch(design, n: int) -> tuple[float, float]:
@@ -118,9 +123,9 @@ def python_batch(design, n: int) -> tuple[float, float]:
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--lib", type=Path, help="directory holding libbusbudget.so and busbudget.h")
-    ap.add_argument("--checks", type=int, default=40, help="single checks per timing run (default 40)")
+    ap.add_argument("--checks", type=int, default=60, help="single checks per timing run (default 60)")
     ap.add_argument("--variants", type=int, default=10_000, help="variants in the batch (default 10000)")
-    ap.add_argument("--repeat", type=int, default=3, help="timing runs per path; the fastest counts (default 3)")
+    ap.add_argument("--repeat", type=int, default=4, help="timing runs per path; the fastest counts (default 4)")
     ap.add_argument("--fresh", type=int, default=5, help="fresh processes for the first-call figures (default 5)")
     ap.add_argument("--quick", action="store_true", help="10 checks, 1000 variants, 2 repeats, 3 fresh processes")
     args = ap.parse_args(argv)
@@ -156,7 +161,7 @@ def main(argv=None) -> int:
         same_check = same_batch = True
         for _ in range(args.repeat):     # interleaved, so both paths see the same machine load
             figs, _ = run_c(exe, design_path, args.checks, args.variants)
-            c_check, c_batch = min(c_check, figs["check_per_call"]), min(c_batch, figs["batch_seconds"])
+            c_check, c_batch = min(c_check, figs["check_median"]), min(c_batch, figs["batch_seconds"])
             per_call, check_sum = python_checks(design, args.checks)
             seconds, batch_sum = python_batch(design, args.variants)
             py_check, py_batch = min(py_check, per_call), min(py_batch, seconds)
@@ -172,7 +177,7 @@ def main(argv=None) -> int:
     print(f"  Python  whole process (exec to exit)                    {py_wall:8.3f} s")
     print(f"  ratio C / Python, whole process                         {c_wall / py_wall:8.2f}")
     print()
-    print(f"per call (fastest of {args.repeat} interleaved runs):")
+    print(f"per call (single checks: median of {args.checks} calls; fastest of {args.repeat} interleaved runs):")
     print(f"  single check, C (bb_set + bb_check)           {1e3 * c_check:10.2f} ms")
     print(f"  single check, Python (with_values + sweep)    {1e3 * py_check:10.2f} ms")
     print(f"  ratio C / Python                              {c_check / py_check:10.3f}")

@@ -27,7 +27,12 @@ Concurrency (C callers may call from many threads at once):
   keeps one Python thread state per C thread for the life of that thread);
 - numerical work runs one call at a time (``_compute_lock``): numba's workqueue
   threading layer must not be entered from two threads at once, and each call
-  already spreads its work over every core.
+  already spreads its work over every core.  Because launches are serialised,
+  :func:`bind` selects the workqueue layer for the embedded runtime (unless
+  ``NUMBA_THREADING_LAYER`` says otherwise): with the OpenMP layer, its worker
+  threads spinning between calls made a single check from C several times
+  slower than the same check in a Python process (measured with
+  benchmarks/c_overhead.py), and a rig then needs no OpenMP runtime.
 """
 from __future__ import annotations
 
@@ -319,11 +324,15 @@ def runtime_info() -> str:
     from . import __version__
     cache = os.environ.get("NUMBA_CACHE_DIR") or "(unset: next to the package's modules, " \
                                                 "or numba's per-user cache if that is read-only)"
+    try:
+        layer = numba.threading_layer()
+    except ValueError:          # no parallel kernel has run yet
+        layer = f"{numba.config.THREADING_LAYER} (not started yet)"
     return "\n".join([
         f"busbudget {__version__} from {os.path.dirname(os.path.abspath(__file__))}",
         f"python {sys.version.split()[0]}: executable {sys.executable}",
         f"prefix {sys.prefix} (base {sys.base_prefix})",
-        f"numba {numba.__version__}, NUMBA_CACHE_DIR {cache}",
+        f"numba {numba.__version__}, threading layer {layer}, NUMBA_CACHE_DIR {cache}",
         f"BUSBUDGET_PYTHON {os.environ.get('BUSBUDGET_PYTHON') or '(unset: the build environment)'}",
     ])
 
@@ -378,6 +387,9 @@ def bind(ffi, lib) -> None:
         if getattr(lib, name) != bit:
             raise RuntimeError(f"busbudget.h: {name} = {getattr(lib, name)} but the kernels use {bit}")
     NULL = ffi.NULL
+    if not os.environ.get("NUMBA_THREADING_LAYER"):   # see the module docstring
+        import numba
+        numba.config.THREADING_LAYER = "workqueue"
 
     def export(fn):
         def call(*args):
