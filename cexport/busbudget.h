@@ -21,9 +21,10 @@
  *   - a directory for numba's compiled-kernel cache.  By default numba writes
  *     next to the package's modules; on a read-only install set
  *     NUMBA_CACHE_DIR to a writable directory before the first call.  With a
- *     warm cache the first call of a process takes about a second (interpreter
- *     start, imports, cache load); with a cold cache the kernels compile first
- *     (tens of seconds, once per cache directory).
+ *     warm cache the first check of a process takes one to two seconds on a
+ *     small machine (interpreter start, imports, cache load; see
+ *     benchmarks/c_overhead.py); with a cold cache the kernels compile first
+ *     (about a minute on 2 cores, once per cache directory).
  *   If the host process already runs Python, the library uses that interpreter.
  *
  * STATUS CODES
