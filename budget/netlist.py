@@ -47,6 +47,9 @@ STEPS_PER_LC_PERIOD = 20
 # Lumped series loss: sections such that each lumped piece reflects < 0.25 % of a wave,
 # i.e. R_section/(4 z0) <= 0.0025.
 LOSS_SECTION_FRACTION = 0.01
+# Lines may be lumped only if their delay is below the 0-100 % ramp time divided by
+# this (their unresolved ringing stays below ~2 TD / (pi T) = 0.5 % of the swing).
+LUMPABLE_RAMP_FRACTION = 128
 
 
 def ramp_time(design: Design, edge: str):
@@ -200,18 +203,33 @@ def choose_dt(design: Design, edge: str) -> float:
 
     The step resolves the driver's ramp (STEPS_PER_RAMP samples over its 0-100 %
     time) and the fastest package-inductance resonance (STEPS_PER_LC_PERIOD
-    samples a period).  Lines do not limit it: shorter lines are lumped.
+    samples a period).  A line shorter than the step is lumped, which cannot
+    ring at its quarter-wave frequency; the corners of a linear ramp of T excite
+    that ringing with up to about 2 TD / (pi T) of the swing, so only lines with
+    TD < T / LUMPABLE_RAMP_FRACTION may be lumped, and longer ones shorten the
+    step to their own delay (at most LUMPABLE_RAMP_FRACTION / STEPS_PER_RAMP = 4x).
     """
     if design.bus.dt is not None:
         return _vmin(design.bus.dt)
-    dt = _vmin(ramp_time(design, edge)) / STEPS_PER_RAMP
+    t_ramp = _vmin(ramp_time(design, edge))
+    dt = t_ramp / STEPS_PER_RAMP
     for tap in design.taps:
         part = design.parts[tap.part]
         l_pkg, c_pin = np.asarray(part.l_pkg), np.asarray(part.c_pin)
         if _vmax(l_pkg) > 0 and _vmax(c_pin) > 0:
             period = 2 * math.pi * math.sqrt(_vmin(l_pkg) * max(_vmin(c_pin), 1e-18))
             dt = min(dt, period / STEPS_PER_LC_PERIOD)
+    for td in line_delays(design):
+        if t_ramp / LUMPABLE_RAMP_FRACTION <= td < dt:
+            dt = td
     return dt
+
+
+def line_delays(design: Design) -> list:
+    """Shortest one-way delay [s] of every segment and stub (over variants)."""
+    out = [_vmin(design.lines[s.line].delay) * _vmin(s.length) for s in design.segments]
+    out += [_vmin(design.lines[t.stub.line].delay) * _vmin(t.stub.length) for t in design.taps if t.stub]
+    return out
 
 
 def default_t_stop(design: Design, edge: str) -> float:
@@ -266,25 +284,32 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
 
     b = _Builder(n)
     notes = []
+    t_ramp_edge = ramp_time(design, edge)
     for name in design.nodes:
         b.node(name)
 
-    def line_values(d, line_name, length):
-        lt = d.lines[line_name]
-        z0 = np.asarray(lt.z0, dtype=float)
-        return z0, np.asarray(lt.delay, dtype=float) * length, np.asarray(lt.r_dc, dtype=float) * length
+    # envelope ranges as plain floats: (min, max) of z0 [ohm], delay [s/m], r_dc [ohm/m] per line type
+    env_lines = {name: tuple(f(getattr(lt, k)) for k in ("z0", "delay", "r_dc") for f in (_vmin, _vmax))
+                 for name, lt in env.lines.items()}
 
     def add_line(a, bnode, line_name, length, env_length, label):
-        z0, td, r_tot = line_values(design, line_name, length)
-        ez0, etd, er_tot = line_values(env, line_name, env_length)
-        lossy = _vmax(er_tot) > 0
-        if lossy and min(_vmin(r_tot), _vmin(er_tot)) <= 0:
+        lt = design.lines[line_name]
+        z0, td, r_tot = lt.z0, lt.delay * length, lt.r_dc * length  # floats, or arrays over variants
+        z0_lo, _, d_lo, _, r_lo, r_hi = env_lines[line_name]
+        len_lo, len_hi = _vmin(env_length), _vmax(env_length)
+        etd_min = d_lo * len_lo                  # shortest delay of this line over the envelope [s]
+        er_max = r_hi * len_hi                   # largest series resistance [ohm]
+        lossy = er_max > 0
+        if lossy and min(_vmin(r_tot), r_lo * len_lo) <= 0:
             raise DesignError("r_dc is zero in some variants and positive in others; give it a small "
                               "positive minimum", source=design.source, table=f"lines.{line_name}", key="r_dc")
-        if _vmin(etd) < dt * (1 - 1e-9):
+        if etd_min < dt * (1 - 1e-9):
             # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (REFERENCES B1).
+            ring = 2 * _vmax(td) / (math.pi * _vmin(t_ramp_edge)) * 100
             notes.append(f"{label}: delay {_vmin(td) * 1e12:.3g} ps is below the time step "
-                         f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2)")
+                         f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2), which cannot ring "
+                         f"at its quarter-wave frequency (up to ~{ring:.2g} % of the swing on a lightly "
+                         "damped line)")
             b.c(a, -1, td / z0 / 2)
             b.c(bnode, -1, td / z0 / 2)
             if lossy:
@@ -298,8 +323,8 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             b.line(a, bnode, z0, td)
             return
         # Series loss lumped between lossless sections: R/(2n) | td/n | R/n | ... | td/n | R/(2n).
-        want = math.ceil(_vmax(er_tot / ez0) / LOSS_SECTION_FRACTION)
-        n_sec = max(1, min(want, int(_vmin(etd) / dt * (1 + 1e-9)), 64))
+        want = math.ceil(er_max / z0_lo / LOSS_SECTION_FRACTION)
+        n_sec = max(1, min(want, int(etd_min / dt * (1 + 1e-9)), 64))
         if n_sec < want:
             notes.append(f"{label}: series loss lumped in {n_sec} sections (accuracy would like {want}); "
                          "expect up to "
@@ -441,7 +466,7 @@ def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, 
     ring_len = np.zeros(len(b.lines), dtype=np.int64)
     line_td = vals(b.lines, 3)
     for k in range(len(b.lines)):
-        ring_len[k] = int(math.floor(_vmax(line_td[k]) / dt + 1e-9)) + 2
+        ring_len[k] = int(math.floor(_vmax(line_td[k]) / dt + 1e-9)) + 4  # cubic stencil reaches q + 2
 
     if drv_node < 0:
         raise RuntimeError("driver node not found")  # unreachable: flatten checked the tap

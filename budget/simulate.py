@@ -70,7 +70,7 @@ def run_netlist(net: Netlist, *, record: bool = True):
     for b0 in range(0, n, tk.LANES):
         bsz = min(tk.LANES, n - b0)
         tk.run_block(
-            b0, bsz, net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
+            b0, bsz, (0,) if bsz == 1 else (), net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
             net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
             net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child, net.tree_parent,
             net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l, net.src_r, net.src_v,

@@ -43,7 +43,7 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
         b0 = blk * LANES
         bsz = min(LANES, n - b0)
         waves = np.empty((n_steps, n_out, bsz))
-        run_block(b0, bsz, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
+        run_block(b0, bsz, (), n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
                   ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
                   tree_kind, tree_elem, tree_child, tree_parent, ring_len,
                   line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
