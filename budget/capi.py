@@ -49,7 +49,7 @@ from .design_file import load, loads
 from .errors import ArgumentError, BusBudgetError, DesignError, SimulationError
 from .kernels import metrics as mk
 from .model import Design
-from .simulate import Waveforms, simulate
+from .simulate import simulate
 from .sweep import SweepResult, sweep
 
 EDGE_NAMES = ("rise", "fall")   # index = BB_RISE / BB_FALL

@@ -184,8 +184,6 @@ class _Evaluator:
     """Runs sweeps, counts progress and keeps the per-analysis worst results."""
 
     def __init__(self, design: Design, progress, total: int):
-        from .sweep import sweep  # noqa: F401  (import errors surface early)
-
         self.design = design
         self.box = {p: (float(lo), float(hi)) for p, (lo, hi) in design.tolerances.items()}
         self.progress = progress

@@ -10,10 +10,10 @@ design bundled with the package (``busbudget examples`` lists them).
 from __future__ import annotations
 
 import argparse
-import os
 import sys
-import tempfile
 from pathlib import Path
+
+from .files import write_atomically
 
 EXIT_PASS, EXIT_FAIL, EXIT_INPUT = 0, 1, 2
 
@@ -30,30 +30,6 @@ def load_design(arg: str):
     if arg.startswith("example:"):
         return load(examples.example_path(arg.split(":", 1)[1]))
     return load(arg)
-
-
-def write_atomically(path: str, write) -> None:
-    """Call write(file) on a temporary file next to ``path``, then rename it into place.
-
-    Nothing is left at ``path`` if writing fails.
-    """
-    target = Path(path)
-    if target.is_dir():
-        raise InputError(f"{path}: is a directory")
-    parent = target.parent if str(target.parent) else Path(".")
-    if not parent.is_dir():
-        raise InputError(f"{path}: the folder {parent} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=parent)
-    try:
-        with os.fdopen(fd, "w", newline="") as fh:
-            write(fh)
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
 
 
 # ---------------------------------------------------------------------------

@@ -17,7 +17,6 @@ from typing import Mapping
 
 import numpy as np
 
-from .errors import DesignError
 
 C0 = 299_792_458.0  # speed of light in vacuum [m/s] (SI definition)
 

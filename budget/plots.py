@@ -15,13 +15,12 @@ from __future__ import annotations
 
 import io
 import math
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from .errors import ArgumentError
+from .files import write_atomically
 
 FORMATS = (".png", ".svg", ".pdf")
 PLOT_MAX_CORNERS = 256
@@ -240,27 +239,12 @@ def save(fig, path) -> None:
     if suffix not in FORMATS:
         raise ArgumentError(f"{path}: unknown picture format {suffix or '(none)'!r}; use one of "
                             f"{', '.join(FORMATS)}")
-    parent = target.parent if str(target.parent) else Path(".")
-    if not parent.is_dir():
-        raise ArgumentError(f"{path}: the folder {parent} does not exist")
-    if target.is_dir():
-        raise ArgumentError(f"{path}: is a directory")
     buf = io.BytesIO()
     try:
         fig.savefig(buf, format=suffix[1:], dpi=120)
     finally:
         plt.close(fig)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(buf.getvalue())
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    write_atomically(target, lambda fh: fh.write(buf.getvalue()), binary=True)
 
 
 __all__ = ["waveform_figure", "margin_map_figure", "save", "FORMATS"]

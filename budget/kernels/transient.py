@@ -141,6 +141,16 @@ def dc_state(b, v_state, r_state, n_nodes, res_a, res_b, src_node, drv_node, dc_
 
 
 @kernel
+def _stamp(amat, m, ia, ib, g):
+    """Add conductance g [S] between local nodes ia and ib (ib < 0: ground) to the m x m matrix."""
+    amat[ia * (m + 1)] += g
+    if ib >= 0:
+        amat[ib * (m + 1)] += g
+        amat[ia * m + ib] -= g
+        amat[ib * m + ia] -= g
+
+
+@kernel
 def _invert(a, m, out):
     """Invert the m x m matrix a (row-major, destroyed) into out; False if singular."""
     for i in range(m):
@@ -305,33 +315,13 @@ def run_block(b0, nb, lanes, n_nodes, cl_start, cl_moff, line_a, line_b, res_a, 
                     amat[(line_b[k] - s0) * (m + 1)] += gz[k, bb]
             for k in range(nr):
                 if s0 <= res_a[k] < s0 + m:
-                    g = 1.0 / res_r[k, b]
-                    ia = res_a[k] - s0
-                    amat[ia * (m + 1)] += g
-                    if res_b[k] >= 0:
-                        ib = res_b[k] - s0
-                        amat[ib * (m + 1)] += g
-                        amat[ia * m + ib] -= g
-                        amat[ib * m + ia] -= g
+                    _stamp(amat, m, res_a[k] - s0, res_b[k] - s0 if res_b[k] >= 0 else -1, 1.0 / res_r[k, b])
             for k in range(nc):
                 if s0 <= cap_a[k] < s0 + m:
-                    g = g_cap[k, bb]
-                    ia = cap_a[k] - s0
-                    amat[ia * (m + 1)] += g
-                    if cap_b[k] >= 0:
-                        ib = cap_b[k] - s0
-                        amat[ib * (m + 1)] += g
-                        amat[ia * m + ib] -= g
-                        amat[ib * m + ia] -= g
+                    _stamp(amat, m, cap_a[k] - s0, cap_b[k] - s0 if cap_b[k] >= 0 else -1, g_cap[k, bb])
             for k in range(ni):
                 if s0 <= ind_a[k] < s0 + m:
-                    g = g_ind[k, bb]
-                    ia = ind_a[k] - s0
-                    ib = ind_b[k] - s0
-                    amat[ia * (m + 1)] += g
-                    amat[ib * (m + 1)] += g
-                    amat[ia * m + ib] -= g
-                    amat[ib * m + ia] -= g
+                    _stamp(amat, m, ind_a[k] - s0, ind_b[k] - s0, g_ind[k, bb])
             for k in range(ns):
                 if s0 <= src_node[k] < s0 + m:
                     amat[(src_node[k] - s0) * (m + 1)] += 1.0 / src_r[k, b]
