@@ -18,7 +18,7 @@ def design():
 @pytest.fixture(scope="module")
 def variants():
     rng = np.random.default_rng(7)
-    n = 37  # more than one 32-variant kernel block, the last one partial
+    n = 71  # more than one 64-variant kernel block, the last one partial
     return {
         "lines.backplane.z0": rng.uniform(46.0, 54.0, n),
         "parts.card_xcvr.c_pin": rng.uniform(2.0e-12, 3.5e-12, n),
@@ -70,8 +70,8 @@ def test_sweep_keep_margin_is_the_same_as_keep_all(design, variants):
 
 def test_sweep_progress_is_reported(design, variants):
     seen = []
-    sweep(design, variants, drivers=["SLOT2"], edges=("rise",), chunk=16, progress=lambda d, n: seen.append((d, n)))
-    assert seen == [(16, 37), (32, 37), (37, 37)]
+    sweep(design, variants, drivers=["SLOT2"], edges=("rise",), chunk=32, progress=lambda d, n: seen.append((d, n)))
+    assert seen == [(32, 71), (64, 71), (71, 71)]
 
 
 BAD = [
