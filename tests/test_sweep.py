@@ -18,7 +18,7 @@ def design():
 @pytest.fixture(scope="module")
 def variants():
     rng = np.random.default_rng(7)
-    n = 71  # more than one 64-variant kernel block, the last one partial
+    n = 71  # more than two 32-variant kernel blocks, the last one partial
     return {
         "lines.backplane.z0": rng.uniform(46.0, 54.0, n),
         "parts.card_xcvr.c_pin": rng.uniform(2.0e-12, 3.5e-12, n),

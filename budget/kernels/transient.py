@@ -44,9 +44,10 @@ STATUS_NOT_FINITE = 3         # the transient produced inf/nan
 
 # Variants per block in sweeps.  The per-variant loops have a run-time trip count
 # (the block size) so LLVM's loop vectoriser handles them, with run-time alias
-# checks; 64 lanes amortise those checks (measured on the 8-drop benchmark bus:
-# 32 lanes 179 us a simulation, 64 lanes 166 us).  A single simulation runs one lane.
-LANES = 64
+# checks; 32 lanes amortise those checks.  64 lanes were 7 % faster on the 8-drop
+# benchmark bus but 12 % slower per drop on the 64-drop one (a block's state and
+# waveforms no longer fit the caches), so 32.  A single simulation runs one lane.
+LANES = 32
 
 
 @kernel
