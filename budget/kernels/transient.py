@@ -10,7 +10,8 @@ Method
   lossless transmission lines", Proc. IEEE 55(11), 1967, pp. 2012-2013).  At
   end k of a line with partner end m, i_k(t) = v_k(t)/Z0 - h_k(t) with
   h_k(t) = v_m(t-TD)/Z0 + i_m(t-TD) = w_m(t-TD), w = 2 v/Z0 - h.  TD is not a
-  multiple of the step: w is interpolated linearly between stored samples.
+  multiple of the step: w is interpolated between stored samples (4-point
+  Lagrange stencil, see run_block).
 - L and C: trapezoidal companions (H. W. Dommel, "Digital computer solution
   of electromagnetic transients in single- and multiphase networks", IEEE
   Trans. PAS-88(4), 1969): C -> conductance 2C/dt with history J = Gc v + i;
