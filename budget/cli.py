@@ -235,14 +235,7 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
     _analysis_options(pl)
     pl.set_defaults(func=cmd_plot)
-
-    for register in COMMANDS:
-        register(sub)
     return p
-
-
-# Other modules add sub-commands here: each entry is a function(subparsers).
-COMMANDS = []
 
 
 def main(argv=None) -> int:

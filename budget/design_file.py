@@ -16,6 +16,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from .errors import DesignError
+from .graph import union_roots
 from .model import (
     C0, ROLES, SIGNALING, TERMINATION_TYPES, Budget, Bus, Design, Edge, LineType, Part, RefLoad,
     Segment, Stub, Tap, Termination, frozen,
@@ -362,19 +363,12 @@ def _parse(doc: dict, source: str):
 
 
 def _check_connected(c: _Ctx, segments, nodes):
-    parent = {n: n for n in nodes}
-
-    def find(x):
-        while parent[x] != x:
-            parent[x] = parent[parent[x]]
-            x = parent[x]
-        return x
-
-    for a, b, _ in segments:
-        parent[find(a)] = find(b)
+    order = sorted(nodes)
+    index = {n: i for i, n in enumerate(order)}
+    roots = union_roots(len(order), [(index[a], index[b]) for a, b, _ in segments])
     groups = {}
-    for n in nodes:
-        groups.setdefault(find(n), []).append(n)
+    for n, r in zip(order, roots):
+        groups.setdefault(r, []).append(n)
     if len(groups) > 1:
         parts = sorted((sorted(g) for g in groups.values()), key=len)
         raise c.err(f"the segments form {len(groups)} separate pieces; nodes {', '.join(parts[0])} are not "

@@ -30,6 +30,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import ArgumentError, DesignError
+from .graph import union_roots
 from .model import Design
 
 EDGES = ("rise", "fall")
@@ -394,32 +395,12 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
                      n_steps, driver, edge, notes)
 
 
-def _union_find(n, pairs):
-    parent = list(range(n))
-
-    def find(x):
-        while parent[x] != x:
-            parent[x] = parent[parent[x]]
-            x = parent[x]
-        return x
-
-    merged = []
-    for k, (a, c) in enumerate(pairs):
-        if c < 0:
-            continue
-        ra, rc = find(a), find(c)
-        if ra != rc:
-            parent[ra] = rc
-            merged.append(k)
-    return [find(i) for i in range(n)], merged
-
-
 def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, dt, n_steps,
               driver, edge, notes) -> Netlist:
     n0 = len(b.names)
     # clusters: nodes joined by lumped two-node elements (lines decouple them within a step)
     pairs = [(a, c) for a, c, *_ in b.res] + [(a, c) for a, c, *_ in b.caps] + [(a, c) for a, c, *_ in b.inds]
-    roots, _ = _union_find(n0, pairs)
+    roots = union_roots(n0, pairs)
     groups = {}
     for i in range(n0):
         groups.setdefault(roots[i], []).append(i)
@@ -451,7 +432,7 @@ def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, 
     # DC: lines (lossless sections) and inductors are shorts; merge their nodes.
     shorts = [(int(line_a[k]), int(line_b[k])) for k in range(len(line_a))] + \
              [(int(ind_a[k]), int(ind_b[k])) for k in range(len(ind_a))]
-    droots, _ = _union_find(n0, shorts)
+    droots = union_roots(n0, shorts)
     dc_groups = {}
     for i in range(n0):
         dc_groups.setdefault(droots[i], []).append(i)

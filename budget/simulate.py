@@ -57,14 +57,14 @@ class Waveforms:
         return self.v_end if self.edge == "rise" else self.v_start
 
 
-def run_netlist(net: Netlist, *, record: bool = True):
+def run_netlist(net: Netlist):
     """Run the transient kernel on every variant of ``net`` (blocks of ``LANES`` variants).
 
-    Returns (waves [n_steps, n_taps, N] or None, dc [2, n_nodes, N], status [N]).
+    Returns (waves [n_steps, n_taps, N], dc [2, n_nodes, N], status [N]).
     """
     n = net.n_variants
     n_out = net.out_node.shape[0]
-    waves = np.empty((net.n_steps if record else 0, n_out, n))
+    waves = np.empty((net.n_steps, n_out, n))
     dc = np.empty((2, net.n_nodes, n))
     status = np.empty(n, dtype=np.int64)
     for b0 in range(0, n, tk.LANES):
@@ -76,7 +76,7 @@ def run_netlist(net: Netlist, *, record: bool = True):
             net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l, net.src_r, net.src_v,
             net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp, net.dt, net.n_steps,
             waves[:, :, b0:b0 + bsz], dc, status)
-    return (waves if record else None), dc, status
+    return waves, dc, status
 
 
 def check_status(status, net: Netlist, design: Design):
