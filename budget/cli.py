@@ -131,6 +131,24 @@ def cmd_plot(args) -> int:
     return EXIT_PASS
 
 
+def cmd_log(args) -> int:
+    """Print the records of a log file (busbudget.record/1 lines) and any damaged line."""
+    import json
+
+    from .records import log_table, read_records
+
+    log = read_records(args.file)
+    if args.json:
+        doc = {"schema": "busbudget.log/1", "path": log.path, "records": log.records,
+               "problems": [{"line": p.line, "kind": p.kind, "text": p.text} for p in log.problems]}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(log_table(log))
+    for p in log.problems:
+        print(f"busbudget: warning: {args.file}: {p}", file=sys.stderr)
+    return EXIT_PASS
+
+
 def _count(text: str) -> int:
     try:
         n = int(text)
@@ -235,6 +253,11 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
     _analysis_options(pl)
     pl.set_defaults(func=cmd_plot)
+
+    lg = sub.add_parser("log", help="print the run records of a log file (and any torn or corrupt line)")
+    lg.add_argument("file", help="log file written with --log")
+    lg.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.log/1)")
+    lg.set_defaults(func=cmd_log)
     return p
 
 
