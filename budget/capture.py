@@ -385,3 +385,104 @@ def _locate_bad_cell(lines, data_idx, delim, ncol, trailing, decimal_comma, name
                 if s.lower().lstrip("+-") in ("nan", "inf", "infinity"):
                     raise CaptureError(f"{c!r} is not a finite number", source=src, line=i + 1, column=names[k])
                 raise CaptureError(f"{c!r} is not a number", source=src, line=i + 1, column=names[k])
+
+
+# ---------------------------------------------------------------------------
+# judging a captured waveform with the simulation's metrics
+
+@dataclass(frozen=True)
+class Judgement:
+    """One captured edge judged against the design: metrics, violations and the levels used.
+
+    v_lo, v_hi [V]: the DC levels at the receiver's pin (from the design's DC solutions
+    unless given); metrics: :class:`budget.metrics.EdgeMetrics` (flight times measured
+    from the driver's timing reference placed at ``t_edge`` of the capture);
+    violations: names of the violated rules (same rule as ``check``).
+    """
+    receiver: str
+    driver: str
+    edge: str
+    v_lo: float
+    v_hi: float
+    metrics: object
+    bits: int
+    violations: tuple
+
+    @property
+    def passed(self) -> bool:
+        return self.bits == 0
+
+
+def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edge: float = 0.0,
+                   v_lo: float | None = None, v_hi: float | None = None, source: str = "<arrays>") -> Judgement:
+    """Judge a captured waveform at ``receiver`` with the metric and violation kernels of the simulation.
+
+    Parameters
+    ----------
+    design : Design
+        Scalar design: thresholds (vil, vih), ratings (v_max, v_min), budget
+        allocations, settle band and minimum margin come from it.
+    t, v : arrays [s], [V]
+        Captured pin waveform, strictly increasing time (any spacing).
+    receiver, driver : str
+        Tap names; ``driver`` sets the DC levels and the timing reference.
+    edge : "rise" or "fall"
+    t_edge : float [s]
+        Time in the capture at which the driver's edge starts (flight times are
+        measured from the driver's timing reference shifted by it).
+    v_lo, v_hi : float [V], optional
+        DC levels at the pin; default: the design's DC operating points.
+    source : str
+        Name of the capture in error messages.
+
+    The capture must start before the edge (its first sample on the starting side
+    of the entry threshold), else CaptureError: a window that cuts the edge is never
+    judged silently.  No filtering: noise counts against the margin.
+    """
+    from .errors import ArgumentError
+    from .kernels import metrics as mk
+    from .metrics import from_vector
+    from .simulate import simulate
+    from .sweep import t_ref_of
+
+    if design.batch_size is not None:
+        raise ArgumentError("judge_waveform() takes a design with scalar values")
+    if edge not in ("rise", "fall"):
+        raise ArgumentError(f"edge must be 'rise' or 'fall', got {edge!r}")
+    part = design.parts[design.tap(receiver).part]
+    if not part.can_receive:
+        raise ArgumentError(f"tap {receiver!r} cannot receive (part {part.name!r} has role {part.role!r})")
+    if receiver == driver:
+        raise ArgumentError(f"tap {receiver!r} is the driver; judge another receiver")
+    if not design.parts[design.tap(driver).part].can_drive:
+        raise ArgumentError(f"tap {driver!r} cannot drive")
+    cap = Capture.from_arrays(t, {receiver: v}, source=source)
+    t, v = cap.t, cap[receiver]
+    if v_lo is None or v_hi is None:
+        w = simulate(design, driver, edge)
+        k = w.index(receiver)
+        v_lo = float(w.v_low[k]) if v_lo is None else float(v_lo)
+        v_hi = float(w.v_high[k]) if v_hi is None else float(v_hi)
+    if not (np.isfinite(v_lo) and np.isfinite(v_hi) and v_lo < v_hi):
+        raise ArgumentError(f"need finite v_lo < v_hi, got v_lo={v_lo!r} V, v_hi={v_hi!r} V")
+    if not np.isfinite(t_edge):
+        raise ArgumentError(f"t_edge must be finite, got {t_edge!r}")
+    vil, vih = float(part.vil), float(part.vih)
+    rising = edge == "rise"
+    if (rising and v[0] >= vil) or (not rising and v[0] <= vih):
+        raise CaptureError(f"the capture starts at {v[0]:.4g} V, already past the entry threshold "
+                           f"({'VIL' if rising else 'VIH'} = {vil if rising else vih:.4g} V): it starts after "
+                           "the edge began", source=source, column=receiver)
+    swing = abs(v_hi - v_lo)
+    # the same arithmetic as the evaluation kernel (budget/kernels/evaluate.py)
+    alloc = sum(x for x, unit in design.budget.allocations.values() if unit == "V") + \
+        sum(x for x, unit in design.budget.allocations.values() if unit == "swing") * swing
+    t_ref = float(t_ref_of(design, driver, edge, 1)[0]) + float(t_edge)
+    out = np.empty(mk.N_METRICS)
+    mk.edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.budget.settle_band) * swing,
+                    float(alloc), out)
+    v_max = np.inf if part.v_max is None else float(part.v_max)
+    v_min = -np.inf if part.v_min is None else float(part.v_min)
+    bits = int(mk.violation_bits(out, v_max, v_min, float(design.budget.min_margin)))
+    return Judgement(receiver=receiver, driver=driver, edge=edge, v_lo=v_lo, v_hi=v_hi,
+                     metrics=from_vector(out), bits=bits, violations=tuple(mk.violation_list(bits)))

@@ -152,3 +152,53 @@ BAD_ARRAYS = [
 def test_bad_arrays_are_refused(t, ch, needle):
     with pytest.raises(CaptureError, match=needle):
         Capture.from_arrays(t, ch)
+
+
+# -- judging a captured waveform with the simulation's kernels ------------------------------
+
+@pytest.mark.parametrize("edge", ["rise", "fall"])
+def test_judging_the_engine_waveform_gives_the_evaluation_kernels_result(edge):
+    """The simulated pin waveform, judged as a capture, gives exactly the metrics and violation
+    bits of the batched evaluation (the path of `check`) on the same time grid."""
+    from budget.kernels import metrics as mk
+    from budget.sweep import evaluate
+
+    design = budget.example("short-bus")
+    w = budget.simulate(design, "CTRL", edge)
+    receivers, metrics, bits, levels = evaluate(design, "CTRL", edge, dt=w.dt, t_stop=float(w.t[-1]))
+    for r, name in enumerate(receivers):
+        j = cap.judge_waveform(design, w.t, w[name], name, edge, "CTRL")
+        assert (j.v_lo, j.v_hi) == (levels[0, r, 0], levels[0, r, 1])
+        got = np.array([np.nan if x is None else float(x) for x in j.metrics.as_dict().values()])
+        want = metrics[0, r]
+        order = [mk.METRIC_NAMES.index(k) for k in j.metrics.as_dict()]
+        np.testing.assert_array_equal(got, want[order])
+        assert j.bits == bits[0, r] and j.passed == (bits[0, r] == 0)
+
+
+def test_judging_a_shifted_capture_moves_only_the_flight_times():
+    design = budget.example("short-bus")
+    w = budget.simulate(design, "CTRL", "rise")
+    a = cap.judge_waveform(design, w.t, w["MEM3"], "MEM3", "rise", "CTRL")
+    b = cap.judge_waveform(design, w.t + 3e-9, w["MEM3"], "MEM3", "rise", "CTRL", t_edge=3e-9)
+    assert b.metrics.flight_min == pytest.approx(a.metrics.flight_min, abs=1e-15)
+    assert b.metrics.margin == a.metrics.margin and b.bits == a.bits
+
+
+JUDGE_BAD = [
+    ("driver-as-receiver", dict(receiver="CTRL"), "cannot receive"),
+    ("unknown-tap", dict(receiver="MEM9"), "unknown tap"),
+    ("bad-edge", dict(edge="up"), "edge must be"),
+    ("receiver-cannot-drive", dict(driver="MEM1"), "cannot drive"),
+    ("levels-reversed", dict(v_lo=2.0, v_hi=0.0), "v_lo < v_hi"),
+    ("starts-mid-edge", dict(start=200), "starts after the edge began"),
+]
+
+
+@pytest.mark.parametrize("change,needle", [b[1:] for b in JUDGE_BAD], ids=[b[0] for b in JUDGE_BAD])
+def test_judge_waveform_bad_input(waves, change, needle):
+    design = budget.example("short-bus")
+    kw = dict(receiver="MEM3", edge="rise", driver="CTRL") | change
+    start = kw.pop("start", 0)
+    with pytest.raises(BusBudgetError, match=needle):
+        cap.judge_waveform(design, waves.t[start:], waves["MEM3"][start:], **kw)
