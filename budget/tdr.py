@@ -36,6 +36,11 @@ one cell cannot show its impedance (a half-cell 30 ohm section between 50 ohm li
 reads 38 ohm) but keeps its electrical size: the integral of ln(Z/Z0) over round-trip
 time within a few %.
 
+Segments: walking from the port, a new segment starts where a cell's impedance
+differs from the running segment's mean by more than ``tolerance`` (default 2 %)
+of that mean; a segment's z is the mean of its cells.  A step that falls inside a
+cell therefore shows as a one-cell segment of intermediate impedance.
+
 Assumptions (stated in every report): lossless line (series loss makes the profile
 creep upward along the line), a linear edge of known or estimated start and duration,
 a port with no parasitic capacitance or inductance, single mode (a differential

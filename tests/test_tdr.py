@@ -255,6 +255,18 @@ def test_estimated_edge_trigger_shift_pretrigger_and_probe_offset():
     assert np.max(np.abs(prof.z[:14] / want - 1)) < 0.01
 
 
+def test_falling_step_from_the_estimated_edge():
+    """A negative-going source step (EMF -1 V from a 1 V baseline) peels to the same profile."""
+    sections = [(50, 3), (75, 4), (50, 2), (35, 3), (50, 2)]
+    design = budget.loads(tdr_design(sections))
+    w = budget.simulate(design, "PORT", "fall", t_stop=21 * RAMP)
+    t = np.concatenate([[-0.1e-9], w.t])          # one pre-trigger sample at the starting level
+    v = np.concatenate([[w["PORT"][0]], w["PORT"]])
+    prof = tdr_profile(t, v, source_r=50.0, emf=-1.0)
+    np.testing.assert_allclose(prof.z[:14], expected_cells(sections), rtol=0.01)
+    assert prof.end[0] == "open"
+
+
 def test_cli_tdr_text_and_json(tmp_path, capsys):
     sections = [(50, 3), (75, 4), (50, 2)]
     t, v = engine_capture(sections)
