@@ -147,6 +147,35 @@ def _is_hex256(s) -> bool:
     return isinstance(s, str) and len(s) == 64 and all(c in "0123456789abcdef" for c in s)
 
 
+def margins_by_receiver(results) -> dict:
+    """{receiver: worst margin [V]} over result rows with the contract keys of check/judge JSON
+    (``receiver``, ``margin_high``, ``margin_low``); None for a receiver with no margin at all."""
+    out = {}
+    for row in results:
+        ms = [m for m in (row.get("margin_high"), row.get("margin_low")) if m is not None]
+        name = row["receiver"]
+        best = out.get(name)
+        low = min(ms) if ms else None
+        if name not in out:
+            out[name] = low
+        elif low is not None:
+            out[name] = low if best is None else min(best, low)
+    return out
+
+
+def record_from_report(doc: dict, *, serial: str, command: str, design_path=None, input_files=(),
+                       settings=()) -> dict:
+    """A record from a command's JSON document (``check``/``judge``: keys verdict, worst, results).
+
+    design_path: the design file (hashed; None for a bundled example given by name);
+    input_files, settings: see :func:`hash_inputs`.
+    """
+    return make_record(serial=serial, command=command, verdict=doc["verdict"],
+                       design_sha256=None if design_path is None else sha256_file(design_path),
+                       inputs_sha256=hash_inputs(input_files, settings=settings), worst=doc.get("worst"),
+                       margins=margins_by_receiver(doc.get("results", ())))
+
+
 def encode_record(rec: dict) -> bytes:
     """One line of UTF-8 JSON (no NaN, no inner newline) ending in ``\\n``."""
     try:

@@ -11,6 +11,7 @@ import subprocess
 import sys
 import textwrap
 import time
+from pathlib import Path
 
 import pytest
 
@@ -111,6 +112,27 @@ def test_corrupt_and_foreign_lines_are_reported_by_line(tmp_path):
     back = read_records(log)
     assert [r["serial"] for r in back.records] == ["SN-1", "SN-2"]
     assert [(p.line, p.kind) for p in back.problems] == [(2, "not JSON"), (3, "not a record")]
+
+
+def test_record_from_a_check_report(tmp_path):
+    import budget
+
+    design_path = budget.example_path("short-bus")
+    doc = budget.check(budget.load(design_path)).to_json()
+    values = tmp_path / "unit.toml"
+    values.write_text('"lines.route.z0" = "47 ohm"\n')
+    r = records.record_from_report(doc, serial="SN-77", command="check", design_path=design_path,
+                                   input_files=[values], settings=["termination.0.r=22 ohm"])
+    assert r["verdict"] == doc["verdict"] and r["worst"] == doc["worst"]
+    assert r["design_sha256"] == records.sha256_bytes(Path(design_path).read_bytes())
+    assert set(r["inputs_sha256"]) == {str(values), "--set"}
+    want = {}
+    for row in doc["results"]:
+        m = row["margin_high"] if row["margin_high"] is not None else row["margin_low"]
+        want[row["receiver"]] = min(want.get(row["receiver"], m), m)
+    assert r["margins"] == want and set(want) == {"MEM1", "MEM2", "MEM3"}
+    append_record(tmp_path / "bench.log", r)
+    assert read_records(tmp_path / "bench.log").records == [r]
 
 
 # -- faults: a full disk, a short write ------------------------------------------------
