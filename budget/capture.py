@@ -19,7 +19,7 @@ File rules (DESIGN.md section 8):
 
 Limits (absurd sizes are refused rather than run out of memory): at most
 ``MAX_BYTES`` of text, ``MAX_ROWS`` samples and ``MAX_CHANNELS`` channels; at least
-``MIN_ROWS`` samples.
+``MIN_ROWS`` samples; the header within the first ``MAX_PREAMBLE`` lines.
 """
 from __future__ import annotations
 
@@ -36,6 +36,7 @@ MAX_BYTES = 512 * 1024 * 1024   # 512 MiB of text
 MAX_ROWS = 20_000_000           # samples per channel (a 20 M point scope record)
 MAX_CHANNELS = 64
 MIN_ROWS = 2
+MAX_PREAMBLE = 500              # the header must be within the first 500 lines
 DELIMITERS = ("\t", ";", ",")
 _NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 _UNIT_SUFFIX = re.compile(r"^(?P<name>.*?)\s*(?P<open>[\(\[])\s*(?P<unit>[^\(\)\[\]]*?)\s*[\)\]]\s*$")
@@ -181,7 +182,7 @@ def _numeric_share(cells, delim) -> float:
 
 def _find_header(lines):
     """(index of header line, delimiter, n_cells, trailing_empty) or raise with the most useful reason."""
-    idx = [i for i, ln in enumerate(lines) if ln.strip()]
+    idx = [i for i, ln in enumerate(lines[:MAX_PREAMBLE + 2]) if ln.strip()]
     for a, b in zip(idx, idx[1:]):
         for d in DELIMITERS:
             head = _split(lines[a], d)
@@ -347,7 +348,7 @@ def _why_no_header(lines) -> str:
         if len(cells) >= 2 and _numeric_share(cells, d) == 1:
             return "no header line: the file starts with numbers; add a header (time column, then channels)"
     return ("no header found: need a line of column names (time first, then channels) followed by rows "
-            "of as many numbers, separated by tab, ';' or ','")
+            f"of as many numbers, separated by tab, ';' or ',', within the first {MAX_PREAMBLE} lines")
 
 
 def _fast_numbers(body, delim, ncol, trailing, decimal_comma):
