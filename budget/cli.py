@@ -172,7 +172,7 @@ def cmd_tdr(args) -> int:
     return EXIT_PASS
 
 
-def _quantity(dimension: str, check=None, what=""):
+def _quantity_type(dimension: str, check=None, what=""):
     """argparse type: a quantity with units of ``dimension`` (or an SI number), optionally checked."""
     def parse(text):
         import math
@@ -312,18 +312,21 @@ def build_parser() -> argparse.ArgumentParser:
                     "and the fabricator's data. Exit 0 = profile written, 2 = bad input.")
     td.add_argument("file", help="capture CSV: a time column and the port voltage (incident plus reflected)")
     td.add_argument("--source-r", required=True, metavar="R",
-                    type=_quantity("resistance", lambda x: x > 0, "a positive resistance"),
+                    type=_quantity_type("resistance", lambda x: x > 0, "a positive resistance"),
                     help="TDR source resistance, e.g. '50 ohm'")
-    td.add_argument("--emf", required=True, metavar="E", type=_quantity("voltage", lambda x: x != 0, "a non-zero step"),
+    td.add_argument("--emf", required=True, metavar="E",
+                    type=_quantity_type("voltage", lambda x: x != 0, "a non-zero step"),
                     help="open-circuit step of the source, e.g. '250 mV'")
     g = td.add_mutually_exclusive_group()
-    g.add_argument("--delay", metavar="D", type=_quantity("delay_per_length", lambda x: x > 0, "a positive delay"),
+    g.add_argument("--delay", metavar="D",
+                   type=_quantity_type("delay_per_length", lambda x: x > 0, "a positive delay"),
                    help="delay per length for the distance axis, e.g. '6.7 ns/m'")
-    g.add_argument("--er-eff", metavar="X", type=_quantity("dimensionless", lambda x: x >= 1, "at least 1"),
+    g.add_argument("--er-eff", metavar="X", type=_quantity_type("dimensionless", lambda x: x >= 1, "at least 1"),
                    help="effective permittivity for the distance axis")
     td.add_argument("--channel", help="column holding the port voltage (default: the only channel)")
-    td.add_argument("--rise", metavar="T", type=_seconds, help="10-90 %% rise time of the edge (default: estimated)")
-    td.add_argument("--t0", metavar="T", type=_quantity("time"), help="start of the edge (default: estimated)")
+    td.add_argument("--rise", metavar="T", type=_seconds,
+                    help="10-90 %% rise time of the (linear) edge; 0-100 %% = rise/0.8 (default: estimated)")
+    td.add_argument("--t0", metavar="T", type=_quantity_type("time"), help="start of the edge (default: estimated)")
     td.add_argument("--cell", metavar="T", type=_seconds,
                     help="round-trip resolution, at least the edge's 0-100 %% duration (default: that duration)")
     td.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.tdr/1)")
