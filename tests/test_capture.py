@@ -202,3 +202,39 @@ def test_judge_waveform_bad_input(waves, change, needle):
     start = kw.pop("start", 0)
     with pytest.raises(BusBudgetError, match=needle):
         cap.judge_waveform(design, waves.t[start:], waves["MEM3"][start:], **kw)
+
+
+# -- property: any dialect reads back what was written ----------------------------------------
+
+from hypothesis import given, strategies as st  # noqa: E402
+
+_DIALECTS = [(",", False), (";", False), (";", True), ("\t", False), ("\t", True)]
+_TIME_UNITS = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
+_VOLT_UNITS = {"": 1.0, "V": 1.0, "mV": 1e-3, "uV": 1e-6, "kV": 1e3}
+
+
+@given(steps=st.lists(st.floats(1e-12, 1e-9), min_size=2, max_size=40),
+       n_ch=st.integers(1, 3), data=st.data(), dialect=st.sampled_from(_DIALECTS),
+       tu=st.sampled_from(sorted(_TIME_UNITS)), vu=st.sampled_from(sorted(_VOLT_UNITS)),
+       brackets=st.sampled_from(["()", "[]"]), comments=st.integers(0, 3))
+def test_any_dialect_reads_back_the_written_numbers(steps, n_ch, data, dialect, tu, vu, brackets, comments):
+    delim, dec_comma = dialect
+    t = np.cumsum(steps) - 1e-9
+    chans = {f"CH{k + 1}": np.array(data.draw(st.lists(st.floats(-50, 50), min_size=len(t), max_size=len(t))))
+             for k in range(n_ch)}
+
+    def cell(x, scale):
+        s = repr(float(x / scale))
+        return s.replace(".", ",") if dec_comma else s
+
+    def head(name, unit):
+        return f"{name} {brackets[0]}{unit}{brackets[1]}" if unit else name
+    lines = [f"free text line {i}: settings" for i in range(comments)]
+    lines.append(delim.join([head("Time", tu)] + [head(n, vu) for n in chans]))
+    for i in range(len(t)):
+        lines.append(delim.join([cell(t[i], _TIME_UNITS[tu])] + [cell(v[i], _VOLT_UNITS[vu]) for v in chans.values()]))
+    c = read_capture("\n".join(lines) + "\n")
+    assert c.names == tuple(chans)
+    np.testing.assert_allclose(c.t, t, rtol=1e-14, atol=1e-30)
+    for n, v in chans.items():
+        np.testing.assert_allclose(c[n], v, rtol=1e-14, atol=1e-300)

@@ -299,3 +299,19 @@ def test_log_command_prints_table_and_json_and_warns_of_damage(tmp_path, capsys)
 def test_log_command_missing_file_is_bad_input(tmp_path, capsys):
     assert main(["log", str(tmp_path / "none.log")]) == 2
     assert "none.log" in capsys.readouterr().err
+
+
+from hypothesis import given, strategies as st  # noqa: E402
+
+
+@given(serial=st.text(st.characters(min_codepoint=32, blacklist_categories=("Cs",)), min_size=1, max_size=40)
+       .filter(lambda s: s.strip() and "\x7f" not in s),
+       margins=st.dictionaries(st.text(min_size=1, max_size=8),
+                               st.one_of(st.none(), st.floats(-10, 10, allow_nan=False)), max_size=5))
+def test_any_serial_and_margins_round_trip_as_one_line(tmp_path_factory, serial, margins):
+    log = tmp_path_factory.mktemp("log") / "bench.log"
+    r = append_record(log, rec(serial, margins=margins))
+    raw = log.read_bytes()
+    assert raw.count(b"\n") == 1 and raw.endswith(b"\n")   # one line whatever the text holds
+    back = read_records(log)
+    assert back.records == [r] and back.problems == []
