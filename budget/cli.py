@@ -131,6 +131,70 @@ def cmd_plot(args) -> int:
     return EXIT_PASS
 
 
+def cmd_log(args) -> int:
+    """Print the records of a log file (busbudget.record/1 lines) and any damaged line."""
+    import json
+
+    from .records import log_table, read_records
+
+    log = read_records(args.file)
+    if args.json:
+        doc = {"schema": "busbudget.log/1", "path": log.path, "records": log.records,
+               "problems": [{"line": p.line, "kind": p.kind, "text": p.text} for p in log.problems]}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(log_table(log))
+    for p in log.problems:
+        print(f"busbudget: warning: {args.file}: {p}", file=sys.stderr)
+    return EXIT_PASS
+
+
+def cmd_tdr(args) -> int:
+    """Impedance profile of a TDR capture by layer peeling (text table or busbudget.tdr/1 JSON)."""
+    import json
+
+    from .capture import read_capture
+    from .errors import CaptureError
+    from .tdr import tdr_profile
+
+    cap = read_capture(args.file)
+    if args.channel is None and len(cap.names) > 1:
+        raise CaptureError(f"{len(cap.names)} channels ({', '.join(cap.names)}); choose the port voltage "
+                           "with --channel", source=cap.source)
+    name = args.channel or cap.names[0]
+    prof = tdr_profile(cap.t, cap[name], source_r=args.source_r, emf=args.emf,
+                       ramp=None if args.rise is None else args.rise / 0.8, t0=args.t0, cell=args.cell,
+                       delay=args.delay, er_eff=args.er_eff, source=cap.source)
+    if args.json:
+        sys.stdout.write(json.dumps(prof.to_json(), indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(prof.text())
+    return EXIT_PASS
+
+
+def _quantity_type(dimension: str, check=None, what=""):
+    """argparse type: a quantity with units of ``dimension`` (or an SI number), optionally checked."""
+    def parse(text):
+        import math
+
+        from .errors import DesignError
+        from .units import parse_quantity
+
+        try:
+            value = float(text)  # a plain number is in SI units
+        except ValueError:
+            try:
+                value = parse_quantity(text, dimension, source="command line")
+            except DesignError as exc:
+                raise argparse.ArgumentTypeError(exc.reason) from None
+        if not math.isfinite(value):
+            raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
+        if check is not None and not check(value):
+            raise argparse.ArgumentTypeError(f"{text!r} is not {what}")
+        return value
+    return parse
+
+
 def _count(text: str) -> int:
     try:
         n = int(text)
@@ -235,6 +299,38 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
     _analysis_options(pl)
     pl.set_defaults(func=cmd_plot)
+
+    lg = sub.add_parser("log", help="print the run records of a log file (and any torn or corrupt line)")
+    lg.add_argument("file", help="log file written with --log")
+    lg.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.log/1)")
+    lg.set_defaults(func=cmd_log)
+
+    td = sub.add_parser(
+        "tdr", help="impedance profile of a TDR capture by layer peeling",
+        description="Impedance vs round-trip time (and distance) from a TDR step response, by layer peeling "
+                    "(multiple reflections included). Lossless-line estimate: confirm with impedance coupons "
+                    "and the fabricator's data. Exit 0 = profile written, 2 = bad input.")
+    td.add_argument("file", help="capture CSV: a time column and the port voltage (incident plus reflected)")
+    td.add_argument("--source-r", required=True, metavar="R",
+                    type=_quantity_type("resistance", lambda x: x > 0, "a positive resistance"),
+                    help="TDR source resistance, e.g. '50 ohm'")
+    td.add_argument("--emf", required=True, metavar="E",
+                    type=_quantity_type("voltage", lambda x: x != 0, "a non-zero step"),
+                    help="open-circuit step of the source, e.g. '250 mV'")
+    g = td.add_mutually_exclusive_group()
+    g.add_argument("--delay", metavar="D",
+                   type=_quantity_type("delay_per_length", lambda x: x > 0, "a positive delay"),
+                   help="delay per length for the distance axis, e.g. '6.7 ns/m'")
+    g.add_argument("--er-eff", metavar="X", type=_quantity_type("dimensionless", lambda x: x >= 1, "at least 1"),
+                   help="effective permittivity for the distance axis")
+    td.add_argument("--channel", help="column holding the port voltage (default: the only channel)")
+    td.add_argument("--rise", metavar="T", type=_seconds,
+                    help="10-90 %% rise time of the (linear) edge; 0-100 %% = rise/0.8 (default: estimated)")
+    td.add_argument("--t0", metavar="T", type=_quantity_type("time"), help="start of the edge (default: estimated)")
+    td.add_argument("--cell", metavar="T", type=_seconds,
+                    help="round-trip resolution, at least the edge's 0-100 %% duration (default: that duration)")
+    td.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.tdr/1)")
+    td.set_defaults(func=cmd_tdr)
     return p
 
 

@@ -46,3 +46,32 @@ class SimulationError(BusBudgetError):
     For example a nodal matrix that is singular because part of the network has
     no path to ground.  The message names the part of the design involved.
     """
+
+
+class RecordError(BusBudgetError):
+    """A record could not be appended to a log file (full disk, short write, I/O error).
+
+    Raised by :func:`budget.records.append_record`.  The log is left exactly as it
+    was before the call (the partial line is cut off again under the file lock);
+    the message names the log file and the operating-system reason.
+    """
+
+
+class CaptureError(BusBudgetError, ValueError):
+    """A captured waveform (bench / oscilloscope export or TDR trace) is unusable.
+
+    Raised by :mod:`budget.capture` and :mod:`budget.tdr`.  The message names the
+    file and, where there is one, the line and column: ``file: line 7, column 'CH1': reason``.
+    """
+
+    def __init__(self, message, *, source="<capture>", line=None, column=None):
+        self.source = source
+        self.line = line
+        self.column = column
+        self.reason = message
+        where = source
+        if line is not None:
+            where += f": line {line}"
+        if column is not None:
+            where += f"{',' if line is not None else ':'} column {column!r}"
+        super().__init__(f"{where}: {message}")
