@@ -262,10 +262,26 @@ def test_text_report_names_the_worst_case_and_states_assumptions():
 
 
 def test_bundled_backplane_passes_nominally():
-    report = budget.check(budget.example("backplane"))
+    report = budget.check(budget.example("backplane"), nominal=True)
     assert report.passed
     assert 0.0 < report.worst["headroom"] < 0.5
     assert len(report.results) == 8 * 7 * 2
+    assert report.coverage["summary"] == "nominal design only" and report.coverage["corners"] == 0
+    assert "(nominal design only)" in report.text()
+
+
+@pytest.mark.slow
+def test_bundled_backplane_fails_by_default_because_the_default_covers_the_box():
+    # 7 toleranced values: 128 corners x 8 drivers x 2 edges = 2048 simulations, within the default
+    # limit, so the default check evaluates them; the nominal design passes, 62 corners do not.
+    report = budget.check(budget.example("backplane"))
+    assert not report.passed
+    assert report.analyses["corners"]["variants"] == 128 and report.analyses["corners"]["default"]
+    assert report.analyses["corners"]["failed"] == 62
+    assert report.analyses["nominal"]["failed"] == 0
+    assert report.coverage["all_corners"] and report.coverage["summary"] == "nominal and all 128 tolerance corners"
+    assert report.worst["analysis"] == "corners" and report.worst["headroom"] < 0
+    assert "(nominal and all 128 tolerance corners)" in report.text()
 
 
 def test_differential_report_says_so():
