@@ -456,10 +456,18 @@ def test_rig_example_passes(programs):
 
 def test_rig_example_fails_with_exit_1(programs):
     proc = run(programs["rig_check"], SHORT, "lines.route.z0=55", "termination.0.r=2", expect=1)
-    r = sweep(budget.load(SHORT).with_values({"lines.route.z0": 55.0, "termination.0.r": 2.0}))
+    unit = budget.load(SHORT).with_values({"lines.route.z0": 55.0, "termination.0.r": 2.0})
+    r = sweep(unit)
     assert not bool(r.passed[0])
     assert "verdict: FAIL" in proc.stdout
     assert f"worst margin: {r.worst_margin[0]:.4f} V" in proc.stdout
+    drv, edge, rcv = r.worst_index(0)
+    assert (f"worst case: driver {drv}, receiver {rcv}, {'rising' if edge == 'rise' else 'falling'} edge, "
+            f"headroom {r.worst_headroom[0]:.4f} V") in proc.stdout
+    # both measured values lie outside the design's box: evaluated, and said so
+    flagged = [line for line in proc.stdout.splitlines() if line.startswith("outside the tolerance box: ")]
+    assert [line.split()[4] for line in flagged] == [o["path"] for o in out_of_box(unit)]
+    assert [o["path"] for o in out_of_box(unit)] == ["lines.route.z0", "termination.0.r"]
 
 
 @pytest.mark.parametrize("args, text", [
