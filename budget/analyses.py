@@ -180,6 +180,7 @@ class WorstTracker:
         self.levels = np.full(shape + (2,), np.nan)
         self.bits = np.zeros(shape, dtype=np.int64)
         self.label = np.empty(shape, dtype=object)
+        self.index = np.full(shape, -1, dtype=np.int64)   # variant number within the analysis (ties: lowest)
         self.values: dict[str, dict] = {}
         self.n = 0
         self.failed = 0
@@ -203,6 +204,7 @@ class WorstTracker:
             self.bits = np.where(better, bits, self.bits)
             self.metrics = np.where(better[..., None], take(res.metrics, i[..., None], axis=0)[0], self.metrics)
             self.levels = np.where(better[..., None], take(res.levels, i[..., None], axis=0)[0], self.levels)
+            self.index = np.where(better, i[0] + self.n, self.index)
             for idx in zip(*np.nonzero(better)):
                 v = int(i[(0, *idx)])
                 self.label[idx] = labels[v]

@@ -52,7 +52,7 @@ from .kernels import metrics as mk
 from .model import Design
 from .roles import driving_part
 from .simulate import simulate
-from .sweep import SweepResult, sweep
+from .sweep import SweepResult, limiting_term, sweep
 
 EDGE_NAMES = ("rise", "fall")   # index = BB_RISE / BB_FALL
 
@@ -244,10 +244,7 @@ def check(handle: int) -> CheckSummary:
         drv, edge, rcv = r.drivers[d], r.edges[e], r.receivers[k]
         d_i, r_i, e_i = names.index(drv), names.index(rcv), EDGE_NAMES.index(edge)
         head = float(r.headroom[0, d, e, k])
-        part = design.parts[design.tap(rcv).part]
-        _, limit = mk.headroom_terms(r.metrics[0, d, e, k], math.inf if part.v_max is None else float(part.v_max),
-                                     -math.inf if part.v_min is None else float(part.v_min),
-                                     float(design.budget.min_margin))
+        limit = limiting_term(design, rcv, r.metrics[0, d, e, k])
     else:   # no (driver, receiver) pair at all
         drv = rcv = ""
         d_i = r_i = e_i = -1

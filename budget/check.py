@@ -36,7 +36,6 @@ happen to share a sweep.
 """
 from __future__ import annotations
 
-import math
 from typing import Callable, Mapping
 
 import numpy as np
@@ -48,6 +47,7 @@ from .errors import ArgumentError, DesignError
 from .kernels import metrics as mk
 from .model import Design
 from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, result_row, worst_summary
+from .sweep import limiting_term, sweep
 
 MC_CHUNK = 512          # Monte Carlo variants per sweep call
 PROGRESS_CHUNK = 256    # variants per progress report inside a sweep call
@@ -65,8 +65,6 @@ class _Evaluator:
 
     def run(self, values: Mapping[str, np.ndarray] | None, n: int, what: str = "a variant"):
         """Sweep n variants; ``what`` names them in the error raised when one is non-physical."""
-        from .sweep import sweep
-
         base = self.done
 
         def tick(done, total):
@@ -292,16 +290,6 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
     return _assemble(design, trackers, analyses, drivers, edges, receivers, coverage)
 
 
-def _limit_values(design: Design, receiver: str, values: dict):
-    """v_max, v_min [V] of a receiver's part in one variant (None where the part gives none)."""
-    part = design.parts[design.tap(receiver).part]
-    out = []
-    for key in ("v_max", "v_min"):
-        x = values.get(f"parts.{part.name}.{key}", getattr(part, key))
-        out.append(None if x is None else float(x))
-    return out
-
-
 def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -> CheckReport:
     results = []
     best = None
@@ -314,8 +302,12 @@ def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -
                     row = result_row(tr.name, tr.label[d, e, r], tr.metrics[d, e, r], tr.levels[d, e, r],
                                      tr.bits[d, e, r], tr.head[d, e, r], drivers[d], receivers[r], edges[e])
                     results.append(row)
-                    if best is None or mk.worse(tr.bits[d, e, r], tr.head[d, e, r], best[1], best[2]):
-                        best = (row, tr.bits[d, e, r], tr.head[d, e, r], tr, (d, e, r))
+                    # the rule, ties to the first in (analysis, variant, driver, edge, receiver) order
+                    bits, head = tr.bits[d, e, r], tr.head[d, e, r]
+                    if best is None or mk.worse(bits, head, best[1], best[2]) or (
+                            best[3] is tr and tr.index[d, e, r] < tr.index[best[4]]
+                            and not mk.worse(best[1], best[2], bits, head)):
+                        best = (row, bits, head, tr, (d, e, r))
     variants = {"nominal": {"analysis": "nominal", "values": {}}}
     for tr in trackers[1:]:
         for label, v in tr.values.items():
@@ -327,11 +319,12 @@ def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -
         used.add(tr.worst_label)
     variants = {k: v for k, v in variants.items() if k in used}
     row, _, _, tr, idx = best
-    v_max, v_min = _limit_values(design, row["receiver"], variants.get(row["corner"], {}).get("values", {}))
+    values = variants.get(row["corner"], {}).get("values", {})
+    limit = limiting_term(design, row["receiver"], tr.metrics[idx], values)
+    part = design.parts[design.tap(row["receiver"]).part]
+    v_max, v_min = (values.get(f"parts.{part.name}.{k}", getattr(part, k)) for k in ("v_max", "v_min"))
     min_margin = float(design.budget.min_margin)
-    _, limit = mk.headroom_terms(tr.metrics[idx], math.inf if v_max is None else v_max,
-                                 -math.inf if v_min is None else v_min, min_margin)
-    worst = worst_summary(row, int(limit), v_max, v_min, min_margin)
+    worst = worst_summary(row, limit, v_max, v_min, min_margin)
     passed = all(r["pass"] for r in results) and all(t.failed == 0 for t in trackers)
     for name, a in analyses.items():
         a["passed"] = a["failed"] == 0

@@ -13,6 +13,7 @@ workers and are gathered in order; results equal the local run bit for bit.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
@@ -165,6 +166,22 @@ def _receiver_arrays(design: Design, receivers, n):
         av.append(arr(alloc_v, 0))
         af.append(arr(alloc_f, 0))
     return [np.ascontiguousarray(np.stack(x)) if x else np.zeros((0, n)) for x in (vil, vih, vmax, vmin, av, af)]
+
+
+def limiting_term(design: Design, receiver: str, m, values: Mapping[str, float] | None = None) -> int:
+    """LIMIT_* code of the term that sets the headroom of metrics vector ``m`` at tap ``receiver``.
+
+    ``values``: the variant's overrides {path: value [SI]} (its v_max / v_min are
+    used when given); the arithmetic is the kernel's
+    (:func:`budget.kernels.metrics.headroom_terms`).
+    """
+    part = design.parts[design.tap(receiver).part]
+    values = values or {}
+    lim = []
+    for key, default in (("v_max", math.inf), ("v_min", -math.inf)):
+        x = values.get(f"parts.{part.name}.{key}", getattr(part, key))
+        lim.append(default if x is None else float(x))
+    return int(mk.headroom_terms(np.asarray(m, dtype=float), lim[0], lim[1], float(design.budget.min_margin))[1])
 
 
 def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:

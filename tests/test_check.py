@@ -325,6 +325,28 @@ def test_worst_case_is_the_same_in_check_and_sweep_on_robust_link():
     np.testing.assert_array_equal(r.headroom[0, 0, :, 0], by_hand)
 
 
+ALL_DESIGNS = [budget.example_path(n) for n in budget.EXAMPLES] + sorted(DESIGNS.glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", ALL_DESIGNS, ids=[p.stem for p in ALL_DESIGNS])
+def test_default_check_and_one_flat_sweep_name_the_same_worst_case(path):
+    # The check keeps a worst result per analysis and (driver, edge, receiver), then picks the
+    # bus-level worst; one sweep over [nominal, corner 1, ...] with the flat rule must agree.
+    # (The same against the C library: tests/test_cexport.py.)
+    from budget.check import corner_values
+    design = budget.load(path)
+    report = check(design)
+    vals, _, codes = corner_values(design)
+    n = codes.shape[0] if vals else 0
+    assert report.coverage["corners"] == n
+    flat = sweep(design, {p: np.concatenate(([design.params[p]], a)) for p, a in vals.items()} or None)
+    v = flat.worst_variant()
+    assert report.worst["corner"] == ("nominal" if v == 0 else f"corner {v}")
+    assert flat.worst_index(v) == (report.worst["driver"], report.worst["edge"], report.worst["receiver"])
+    assert report.worst["headroom"] == pytest.approx(float(flat.worst_headroom[v]), abs=1e-12)
+    assert report.passed == bool(flat.passed.all())
+
+
 @pytest.mark.parametrize("bits, head, expected", [
     ([0, 0, 0], [0.3, 0.1, 0.2], 1),                 # lowest headroom
     ([0, 16, 0], [0.1, 0.4, 0.2], 1),                # a violation before any headroom
