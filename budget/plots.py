@@ -2,11 +2,13 @@
 
 - :func:`waveform_figure`: the pin waveform at every receiver for one driver
   and edge -- the nominal design, every tolerance corner in thin grey, the
-  corner with the least headroom at that receiver in bold -- over the shaded
+  worst corner at that receiver in bold (the check's rule: a violation
+  first, then the least headroom; numbers from :func:`budget.sweep.sweep`,
+  so they equal the check's) -- over the shaded
   threshold region (VIL..VIH) and the level the budget requires
   (VIH + allocations on a rising edge, VIL - allocations on a falling one).
 - :func:`margin_map_figure`: a driver x receiver map of the worst margin of a
-  :class:`budget.check.CheckReport` (lowest over both edges and every
+  :class:`budget.report.CheckReport` (lowest over both edges and every
   analysed case), red below the required minimum.
 
 :func:`save` writes PNG, SVG or PDF (chosen by the file suffix) atomically.

@@ -378,6 +378,11 @@ BAD = [
     ("max-corners-zero", dict(corners=True, max_corners=0), "max_corners"),
     ("generations-zero", dict(search=True, search_generations=0), "search_generations"),
     ("progress-not-callable", dict(progress=3), "progress"),
+    ("nominal-with-corners", dict(nominal=True, corners=True), "nominal design alone"),
+    ("nominal-with-monte-carlo", dict(nominal=True, monte_carlo=5), "nominal design alone"),
+    ("nominal-with-search", dict(nominal=True, search=True), "nominal design alone"),
+    ("corners-not-bool", dict(corners="yes"), "corners must be True, False or None"),
+    ("nominal-not-bool", dict(nominal=1), "nominal must be True or False"),
 ]
 
 
