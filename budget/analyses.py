@@ -51,6 +51,9 @@ MAX_CORNERS = 4096
 # is at most this many simulations (a few minutes at most on a 2-core machine).
 DEFAULT_MAX_SIMULATIONS = 4096
 N_EDGES = 2
+# A value is out of the box only beyond this fraction of the interval's magnitude, so that
+# "45 ohm" typed for a box computed as 50 ohm - 10 % (45.00000000000001) is not flagged.
+BOX_SLACK = 1e-9
 
 
 def wilson_interval(k: int, n: int, confidence: float = 0.95) -> tuple[float, float]:
@@ -152,12 +155,14 @@ def out_of_box(design: Design) -> list:
 
     A measured or overridden value (``Design.with_values``, ``bb_set``) may lie
     outside the interval the design file allows; it is evaluated as given, and
-    this list lets reports flag it.  Boundary values are inside.
+    this list lets reports flag it.  Boundary values are inside (within
+    :data:`BOX_SLACK` of the interval's magnitude: rounding is not flagged).
     """
     out = []
     for p, (lo, hi) in design.tolerances.items():
         x = np.asarray(design.params[p], dtype=float)
-        if np.any(x < lo) or np.any(x > hi):
+        slack = BOX_SLACK * max(abs(float(lo)), abs(float(hi)))
+        if np.any(x < lo - slack) or np.any(x > hi + slack):
             value = float(x) if x.ndim == 0 else [float(v) for v in x]
             out.append({"path": p, "value": value, "min": float(lo), "max": float(hi)})
     return out

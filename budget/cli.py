@@ -109,9 +109,11 @@ def cmd_check(args) -> int:
         body = report.text()
     if args.out:
         write_atomically(args.out, lambda fh: fh.write(body))
+        from .report import volts
+
         w = report.worst
         print(f"{report.verdict.upper()}: worst {w['driver']} -> {w['receiver']} {w['edge']} {w['corner']}: "
-              f"headroom {w['headroom']:+.3f} V; report written to {args.out}")
+              f"headroom {volts(w['headroom'])} ({report.coverage['summary']}); report written to {args.out}")
     else:
         sys.stdout.write(body)
     return EXIT_PASS if report.passed else EXIT_FAIL
@@ -223,7 +225,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     c = sub.add_parser(
         "check", help="budget report: every driver x receiver x edge, nominal and across tolerances",
-        description="Check that every receiver keeps its noise margin whichever device drives. "
+        description="Check that every receiver keeps its noise margin whichever device drives: the nominal "
+                    "design and, when the design has [tolerances], every corner of the tolerance box (unless "
+                    "corners x drivers x edges exceeds the default limit: the report then says the box was not "
+                    "covered). "
                     "Exit 0 = passes, 1 = a margin or absolute rating is violated, 2 = bad input, "
                     "3 = internal error. "
                     "Results are estimates: confirm by measurement and with the part makers' data.")

@@ -306,6 +306,10 @@ def test_measured_values_outside_the_box_are_evaluated_and_flagged():
         float(sweep(unit).margin[0, 0, 0, 0]), abs=0)
     inside = check(design.with_values({"lines.l.z0": 46.0}), nominal=True)
     assert inside.out_of_box == [] and "outside the tolerance box" not in inside.text()
+    lo, hi = design.tolerances["lines.l.z0"]
+    assert out_of_box(design.with_values({"lines.l.z0": lo * (1 - 1e-13)})) == []   # rounding: inside
+    assert len(out_of_box(design.with_values({"lines.l.z0": lo * (1 - 1e-6)}))) == 1
+    assert len(out_of_box(design.with_values({"lines.l.z0": hi * (1 + 1e-6)}))) == 1
 
 
 def test_worst_case_is_the_same_in_check_and_sweep_on_robust_link():
