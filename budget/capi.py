@@ -45,12 +45,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .analyses import out_of_box
 from .design_file import load, loads
 from .errors import ArgumentError, BusBudgetError, DesignError, SimulationError
 from .kernels import metrics as mk
 from .model import Design
+from .roles import driving_part
 from .simulate import simulate
-from .sweep import SweepResult, sweep
+from .sweep import SweepResult, limiting_term, sweep
 
 EDGE_NAMES = ("rise", "fall")   # index = BB_RISE / BB_FALL
 
@@ -69,7 +71,12 @@ class CallFailed(BusBudgetError):
 
 @dataclass(frozen=True)
 class CheckSummary:
-    """What bb_check() reports; margins [V]; tap indices in design-file order (-1: no case)."""
+    """What bb_check() reports; margins and headroom [V]; tap indices in design-file order (-1: no case).
+
+    driver / receiver / edge name the worst case by the one rule
+    (:meth:`budget.sweep.SweepResult.worst_indices`); worst_limit is its
+    LIMIT_* code; worst_margin stays the lowest margin over every case.
+    """
     passed: bool
     worst_margin: float
     driver: int
@@ -80,6 +87,9 @@ class CheckSummary:
     violations: int
     driver_name: str
     receiver_name: str
+    worst_headroom: float = math.nan
+    worst_limit: int = -1
+    n_out_of_box: int = 0
 
 
 class _Slot:
@@ -227,16 +237,27 @@ def check(handle: int) -> CheckSummary:
     valid = np.broadcast_to(r.valid[:, None, :], r.margin.shape[1:])
     bits = r.bits[0]
     worst = float(r.worst_margin[0])
-    if math.isfinite(worst):
-        drv, edge, rcv = r.worst_index(0)
+    idx = r.worst_indices(0)
+    head, limit = math.nan, -1
+    if idx is not None:
+        d, e, k = idx
+        drv, edge, rcv = r.drivers[d], r.edges[e], r.receivers[k]
         d_i, r_i, e_i = names.index(drv), names.index(rcv), EDGE_NAMES.index(edge)
+        head = float(r.headroom[0, d, e, k])
+        limit = limiting_term(design, rcv, r.metrics[0, d, e, k])
     else:   # no (driver, receiver) pair at all
         drv = rcv = ""
         d_i = r_i = e_i = -1
     return CheckSummary(
         passed=bool(r.passed[0]), worst_margin=worst, driver=d_i, receiver=r_i, edge=e_i,
         n_cases=int(np.count_nonzero(valid)), n_failing=int(np.count_nonzero(bits[valid] != 0)),
-        violations=int(np.bitwise_or.reduce(bits[valid], initial=0)), driver_name=drv, receiver_name=rcv)
+        violations=int(np.bitwise_or.reduce(bits[valid], initial=0)), driver_name=drv, receiver_name=rcv,
+        worst_headroom=head, worst_limit=int(limit), n_out_of_box=len(out_of_box(design)))
+
+
+def out_of_box_entries(handle: int) -> list:
+    """Values of the design behind ``handle`` outside their tolerance interval (:func:`budget.analyses.out_of_box`)."""
+    return out_of_box(design_of(handle))
 
 
 def margin_table(handle: int) -> np.ndarray:
@@ -274,10 +295,7 @@ def waveform(handle: int, driver: str, edge: int, tap: str) -> tuple[np.ndarray,
     with slot.lock:
         design, w = slot.design, slot.waves.get((driver, edge_name))
     if w is None:
-        design.tap(driver)          # unknown tap -> ArgumentError naming the taps
-        part = design.parts[design.tap(driver).part]
-        if not part.can_drive:
-            raise ArgumentError(f"tap {driver!r} cannot drive (part role {part.role!r})")
+        driving_part(design, driver)   # unknown tap or one that cannot drive -> ArgumentError
         with _compute_lock:
             w = simulate(design, driver, edge_name)
         with slot.lock:
@@ -355,6 +373,8 @@ def _set_error(message: str) -> None:
 STATUS_NAMES = ("BB_NOT_STARTED", "BB_OK", "BB_FAIL", "BB_ERR_NULL", "BB_ERR_HANDLE", "BB_ERR_FILE",
                 "BB_ERR_DESIGN", "BB_ERR_PATH", "BB_ERR_VALUE", "BB_ERR_SIZE", "BB_ERR_ARGUMENT",
                 "BB_ERR_SIMULATION", "BB_ERR_INTERNAL")
+LIMIT_CODES = {"BB_LIMIT_MARGIN": mk.LIMIT_MARGIN, "BB_LIMIT_V_MAX": mk.LIMIT_V_MAX,
+               "BB_LIMIT_V_MIN": mk.LIMIT_V_MIN}
 VIOLATION_BITS = {"BB_VIOL_MARGIN": mk.VIOL_MARGIN, "BB_VIOL_NEVER_VALID": mk.VIOL_NEVER_VALID,
                   "BB_VIOL_OVER_MAX": mk.VIOL_OVER_MAX, "BB_VIOL_UNDER_MIN": mk.VIOL_UNDER_MIN,
                   "BB_VIOL_NON_MONOTONIC": mk.VIOL_NON_MONOTONIC, "BB_VIOL_NOT_SETTLED": mk.VIOL_NOT_SETTLED}
@@ -383,7 +403,7 @@ def bind(ffi, lib) -> None:
     code = {name: getattr(lib, name) for name in STATUS_NAMES}
     if code["BB_NOT_STARTED"] != 0 or any(code[n] == 0 for n in STATUS_NAMES[1:]):
         raise RuntimeError("busbudget.h: only BB_NOT_STARTED may be 0 (cffi returns 0 when start-up fails)")
-    for name, bit in VIOLATION_BITS.items():
+    for name, bit in {**VIOLATION_BITS, **LIMIT_CODES}.items():
         if getattr(lib, name) != bit:
             raise RuntimeError(f"busbudget.h: {name} = {getattr(lib, name)} but the kernels use {bit}")
     NULL = ffi.NULL
@@ -520,7 +540,29 @@ def bind(ffi, lib) -> None:
         result.n_cases, result.n_failing, result.violations = s.n_cases, s.n_failing, s.violations
         result.driver_name = cut(s.driver_name)
         result.receiver_name = cut(s.receiver_name)
+        result.worst_headroom, result.worst_limit = s.worst_headroom, s.worst_limit
+        result.n_out_of_box = s.n_out_of_box
         return "BB_OK" if s.passed else "BB_FAIL"
+
+    @export
+    def bb_out_of_box_count(design, count):
+        need(count=count)
+        count[0] = len(out_of_box_entries(design))
+        return "BB_OK"
+
+    @export
+    def bb_out_of_box(design, index, path, size, value, vmin, vmax):
+        need(path=path)
+        entries = out_of_box_entries(design)
+        if not 0 <= index < len(entries):
+            raise ArgumentError(f"out-of-box entry index {index} is out of range: the design has "
+                                f"{len(entries)} value(s) outside its tolerance box")
+        e = entries[index]
+        put_text(path, size, e["path"], "the parameter path")
+        for p, x in ((value, e["value"]), (vmin, e["min"]), (vmax, e["max"])):
+            if p != NULL:
+                p[0] = x
+        return "BB_OK"
 
     def sized(design, count, per_tap_squared):
         n = len(tap_names(design))
@@ -577,6 +619,6 @@ def bind(ffi, lib) -> None:
 
 __all__ = [
     "CallFailed", "CheckSummary", "open_file", "open_text", "close", "design_of", "set_value", "get_value",
-    "param_names", "tap_names", "check", "margin_table", "receiver_margins", "waveform", "batch",
+    "param_names", "tap_names", "check", "out_of_box_entries", "margin_table", "receiver_margins", "waveform", "batch",
     "runtime_info", "last_error", "status_of", "bind",
 ]

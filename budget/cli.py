@@ -2,7 +2,10 @@
 
 Exit codes (a contract): 0 = the bus passes / the command succeeded,
 1 = a margin or rating is violated, 2 = bad input (one-line message on
-stderr, no output file written).
+stderr, no output file written), 3 = an internal error (a bug in busbudget:
+a one-line message naming the exception; set BUSBUDGET_DEBUG=1 for the
+traceback).  Only the package's own errors (:class:`budget.errors.BusBudgetError`)
+count as bad input.
 
 A DESIGN argument is a path to a design file, or ``example:NAME`` for a
 design bundled with the package (``busbudget examples`` lists them).
@@ -10,15 +13,18 @@ design bundled with the package (``busbudget examples`` lists them).
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
+from .errors import ArgumentError, BusBudgetError
 from .files import write_atomically
 
-EXIT_PASS, EXIT_FAIL, EXIT_INPUT = 0, 1, 2
+EXIT_PASS, EXIT_FAIL, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
+DEBUG_ENV = "BUSBUDGET_DEBUG"
 
 
-class InputError(Exception):
+class InputError(ArgumentError):
     """Bad input found by the CLI itself (exit 2)."""
 
 
@@ -82,7 +88,8 @@ def _run_check(args, design):
 
     bar = _progress(args)
     try:
-        return check(design, corners=args.corners, monte_carlo=args.monte_carlo, seed=args.seed,
+        return check(design, corners=True if args.corners else None, nominal=args.nominal,
+                     monte_carlo=args.monte_carlo, seed=args.seed,
                      search=args.search, progress=bar, distribution=args.distribution,
                      max_corners=args.max_corners, search_generations=args.search_generations)
     finally:
@@ -91,7 +98,7 @@ def _run_check(args, design):
 
 
 def cmd_check(args) -> int:
-    """The budget report (text or JSON); exit 0 pass, 1 fail, 2 bad input."""
+    """The budget report (text or JSON); exit 0 pass, 1 fail, 2 bad input, 3 internal error."""
     import json
 
     design = load_design(args.design)
@@ -102,9 +109,11 @@ def cmd_check(args) -> int:
         body = report.text()
     if args.out:
         write_atomically(args.out, lambda fh: fh.write(body))
+        from .report import volts
+
         w = report.worst
         print(f"{report.verdict.upper()}: worst {w['driver']} -> {w['receiver']} {w['edge']} {w['corner']}: "
-              f"headroom {w['headroom']:+.3f} V; report written to {args.out}")
+              f"headroom {volts(w['headroom'])} ({report.coverage['summary']}); report written to {args.out}")
     else:
         sys.stdout.write(body)
     return EXIT_PASS if report.passed else EXIT_FAIL
@@ -215,8 +224,15 @@ def _positive(text: str) -> int:
 def _analysis_options(parser) -> None:
     from .check import DISTRIBUTIONS, MAX_CORNERS, SEARCH_GENERATIONS
 
-    parser.add_argument("--corners", action="store_true",
-                        help="also evaluate every corner of the [tolerances] box (2**k variants)")
+    from .analyses import DEFAULT_MAX_SIMULATIONS
+
+    scope = parser.add_mutually_exclusive_group()
+    scope.add_argument("--corners", action="store_true",
+                       help="evaluate every corner of the [tolerances] box (2**k variants) whatever their number "
+                            "(by default they are evaluated when corners x drivers x edges is at most "
+                            f"{DEFAULT_MAX_SIMULATIONS})")
+    scope.add_argument("--nominal", action="store_true",
+                       help="evaluate the nominal design alone (no tolerance analysis)")
     parser.add_argument("--monte-carlo", type=_count, default=0, metavar="N",
                         help="also evaluate N random variants inside the tolerance box")
     parser.add_argument("--seed", type=_count, default=None, metavar="S",
@@ -273,8 +289,12 @@ def build_parser() -> argparse.ArgumentParser:
 
     c = sub.add_parser(
         "check", help="budget report: every driver x receiver x edge, nominal and across tolerances",
-        description="Check that every receiver keeps its noise margin whichever device drives. "
-                    "Exit 0 = passes, 1 = a margin or absolute rating is violated, 2 = bad input. "
+        description="Check that every receiver keeps its noise margin whichever device drives: the nominal "
+                    "design and, when the design has [tolerances], every corner of the tolerance box (unless "
+                    "corners x drivers x edges exceeds the default limit: the report then says the box was not "
+                    "covered). "
+                    "Exit 0 = passes, 1 = a margin or absolute rating is violated, 2 = bad input, "
+                    "3 = internal error. "
                     "Results are estimates: confirm by measurement and with the part makers' data.")
     c.add_argument("design", help="design file, or example:NAME")
     c.add_argument("--json", action="store_true",
@@ -335,8 +355,6 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
-    from .errors import BusBudgetError
-
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -344,16 +362,21 @@ def main(argv=None) -> int:
         return int(exc.code or 0)
     try:
         return int(args.func(args))
-    except (BusBudgetError, ValueError, InputError) as exc:
+    except BusBudgetError as exc:
         msg = " ".join(str(exc).split())
         print(f"busbudget: error: {msg}", file=sys.stderr)
-        return EXIT_INPUT
-    except OSError as exc:
-        print(f"busbudget: error: {exc}", file=sys.stderr)
         return EXIT_INPUT
     except KeyboardInterrupt:
         print("busbudget: interrupted", file=sys.stderr)
         return 130
+    except Exception as exc:   # a bug: say so in one line, never as bad input
+        if os.environ.get(DEBUG_ENV, "") not in ("", "0"):
+            import traceback
+            traceback.print_exc()
+        msg = " ".join(f"{type(exc).__name__}: {exc}".split())
+        print(f"busbudget: internal error: {msg} -- this is a bug in busbudget; please report it with the "
+              f"command and design file (set {DEBUG_ENV}=1 for the traceback)", file=sys.stderr)
+        return EXIT_INTERNAL
 
 
 if __name__ == "__main__":  # pragma: no cover

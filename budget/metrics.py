@@ -122,3 +122,21 @@ def smooth(t, v, window: float) -> np.ndarray:
     out = np.empty_like(v)
     mk.moving_average(t, v, float(window), out)
     return out
+
+
+def allocation_terms(budget) -> tuple[float, float]:
+    """(volts [V], fraction of the swing [-]) summed over the ``[budget]`` allocations.
+
+    The allocation taken off a margin at a pin whose swing is |V_hi - V_lo| is
+    volts + fraction * swing (see :func:`allocation`); this is the one place
+    the allocations are summed.
+    """
+    volts = sum(float(v) for v, unit in budget.allocations.values() if unit == "V")
+    frac = sum(float(v) for v, unit in budget.allocations.values() if unit == "swing")
+    return volts, frac
+
+
+def allocation(budget, swing: float) -> float:
+    """Sum of the budget allocations [V] at a pin of the given swing [V]."""
+    volts, frac = allocation_terms(budget)
+    return volts + frac * abs(swing)

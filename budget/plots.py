@@ -2,11 +2,13 @@
 
 - :func:`waveform_figure`: the pin waveform at every receiver for one driver
   and edge -- the nominal design, every tolerance corner in thin grey, the
-  corner with the least headroom at that receiver in bold -- over the shaded
+  worst corner at that receiver in bold (the check's rule: a violation
+  first, then the least headroom; numbers from :func:`budget.sweep.sweep`,
+  so they equal the check's) -- over the shaded
   threshold region (VIL..VIH) and the level the budget requires
   (VIH + allocations on a rising edge, VIL - allocations on a falling one).
 - :func:`margin_map_figure`: a driver x receiver map of the worst margin of a
-  :class:`budget.check.CheckReport` (lowest over both edges and every
+  :class:`budget.report.CheckReport` (lowest over both edges and every
   analysed case), red below the required minimum.
 
 :func:`save` writes PNG, SVG or PDF (chosen by the file suffix) atomically.
@@ -65,24 +67,13 @@ def _waves(design, driver, edge, values, n):
     return net, waves[:, :, offset:], dc[:, :, offset:]
 
 
-def _headroom(design, t, v, edge, v_lo, v_hi, part, values, k):
-    """Headroom [V] of one waveform (see budget.check): margin, v_max and v_min limits."""
-    from .metrics import edge_metrics
+def _headrooms(design, driver, edge, values):
+    """[n_variants, n_rcv] headroom [V] and violation bits from :func:`budget.sweep.sweep` -- the
+    numbers and the worst-case rule of the check -- and the receivers' names."""
+    from .sweep import sweep
 
-    def val(key, default):
-        path = f"parts.{part.name}.{key}"
-        if values and path in values:
-            return float(values[path][k])
-        x = getattr(part, key)
-        return default if x is None else float(x)
-
-    swing = abs(v_hi - v_lo)
-    alloc = sum(x if unit == "V" else x * swing for x, unit in design.budget.allocations.values())
-    m = edge_metrics(t, v, edge=edge, v_lo=v_lo, v_hi=v_hi, vil=val("vil", 0.0), vih=val("vih", 0.0),
-                     settle_band=design.budget.settle_band, allocation=alloc)
-    h = m.margin - design.budget.min_margin
-    h = min(h, val("v_max", math.inf) - m.v_peak, m.v_trough - val("v_min", -math.inf))
-    return h, m
+    res = sweep(design, values, drivers=[driver], edges=(edge,), keep="margin")
+    return res.headroom[:, 0, 0, :], res.bits[:, 0, 0, :], res.receivers
 
 
 def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: bool = True,
@@ -93,14 +84,15 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
     corners: overlay every tolerance corner when there are at most
     ``max_corners`` of them, with the worst one (least headroom) highlighted.
     """
-    from .check import corner_values
+    from .analyses import corner_values
+    from .kernels.metrics import worst_along
+    from .metrics import allocation
+    from .roles import driving_part
 
     plt = _pyplot()
     if edge not in ("rise", "fall"):
         raise ArgumentError(f"edge must be 'rise' or 'fall', got {edge!r}")
-    design.tap(driver)
-    if driver not in design.drivers:
-        raise ArgumentError(f"tap {driver!r} cannot drive; taps that can: {', '.join(design.drivers)}")
+    driving_part(design, driver)
     all_rcv = [r for r in design.receivers if r != driver]
     if receivers is None:
         receivers = all_rcv
@@ -122,6 +114,7 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
             vals = {p: np.concatenate(([design.params[p]], a)) for p, a in cv.items()}
             labels += [f"corner {i + 1}" for i in range(codes.shape[0])]
     net, waves, dc = _waves(design, driver, edge, vals, n)
+    heads, bits, rcv_names = _headrooms(design, driver, edge, vals)
     t_ns = net.t * 1e9
     ncol = min(3, len(receivers))
     nrow = math.ceil(len(receivers) / ncol)
@@ -133,11 +126,9 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
         part = design.parts[design.tap(name).part]
         node = net.out_node[j]
         lo_i, hi_i = (0, 1) if rising else (1, 0)
-        heads = []
-        for k in range(n):
-            v_lo, v_hi = float(dc[lo_i, node, k]), float(dc[hi_i, node, k])
-            heads.append(_headroom(design, net.t, waves[:, j, k], edge, v_lo, v_hi, part, vals, k)[0])
-        worst = int(np.argmin(heads))
+        col = rcv_names.index(name)
+        head = heads[:, col]
+        worst = int(worst_along(bits[:, col], head))    # the check's rule: a violation first, then headroom
         for k in range(1, n):
             if k != worst:
                 ax.plot(t_ns, waves[:, j, k], color=CORNER, lw=0.6, alpha=0.45,
@@ -146,7 +137,7 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
         ax.axhspan(vil, vih, color=BAND, alpha=0.35, lw=0, label="threshold region VIL..VIH")
         v_lo, v_hi = float(dc[lo_i, node, 0]), float(dc[hi_i, node, 0])
         swing = abs(v_hi - v_lo)
-        alloc = sum(x if unit == "V" else x * swing for x, unit in design.budget.allocations.values())
+        alloc = allocation(design.budget, swing)
         need = vih + alloc + design.budget.min_margin if rising else vil - alloc - design.budget.min_margin
         ax.axhline(need, color=REQUIRED, lw=1.0, ls=":", label="required level (threshold + budget)")
         for lim, key in ((part.v_max, "v_max"), (part.v_min, "v_min")):
@@ -155,7 +146,7 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
         ax.plot(t_ns, waves[:, j, 0], color=NOMINAL, lw=1.4, label="nominal")
         if worst != 0:
             ax.plot(t_ns, waves[:, j, worst], color=WORST, lw=1.8, label=f"worst: {labels[worst]}")
-        ax.set_title(f"{name}: headroom {heads[worst]:+.3f} V ({labels[worst]})", fontsize=9)
+        ax.set_title(f"{name}: headroom {head[worst]:+.3f} V ({labels[worst]})", fontsize=9)
         ax.grid(True, lw=0.3, alpha=0.5)
         ax.tick_params(labelsize=8)
     for ax in axes.flat[len(receivers):]:

@@ -1,4 +1,7 @@
-"""Reports of a budget check: a text table for people, a versioned JSON document for scripts.
+"""Reports of a budget check: the report object, a text table for people, a versioned JSON document for scripts.
+
+:class:`CheckReport` is what :func:`budget.check.check` returns; this module
+owns it, its JSON schema and both renderings.
 
 JSON (schema ``busbudget.check/1``, DESIGN.md section 5 is the contract; keys
 are only ever added): SI units (volts, seconds), ``null`` for a time that
@@ -8,16 +11,159 @@ never occurs, never NaN.  Extensions beyond the contract are listed in
 Text: a header, the budget, one line per receiver with its worst figures over
 every driver, both edges and every analysed case (the receiver holding the
 bus-level worst case is marked ``>>``), the worst case in words, the tolerance
-analyses, the verdict line, and what the model assumes.  "-" marks a figure
-that does not apply, "never" a time that never occurs (a violation).
+analyses, values outside the tolerance box, what was covered, the verdict
+line, and what the model assumes.  "-" marks a figure that does not apply,
+"never" a time that never occurs (a violation).
 """
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass, field
 
 import numpy as np
 
-from .check import ASSUMPTIONS, SCHEMA, CheckReport
+from .kernels import metrics as mk
+
+SCHEMA = "busbudget.check/1"
+
+RESULT_KEYS = ("driver", "receiver", "edge", "corner", "v_lo", "v_hi", "t_switch", "t_valid", "flight_min",
+               "flight_max", "overshoot", "undershoot", "ringback", "monotonic", "settle_time",
+               "margin_high", "margin_low", "v_peak", "v_trough", "pass", "violations")
+
+ASSUMPTIONS = (
+    "Linear driver model: each output state is a voltage behind a resistance, blended linearly over "
+    "a ramp; no IBIS-style non-linear curves, clamp diodes or slew control.",
+    "Differential buses are analysed in their differential mode only; common-mode effects are out of "
+    "scope.",
+    "Line loss is a DC series resistance lumped between sections; no skin effect or dielectric loss.",
+    "Crosstalk, supply noise and other noise are not computed: they enter only as the allocations of "
+    "the [budget] table.",
+    "The margins are estimates to confirm by measurement and with the part makers' data; absolute "
+    "maximum ratings come from the parts' datasheets, not from this tool.  Defer to the applicable "
+    "interface standards and to the responsible engineer.",
+)
+
+
+# ---------------------------------------------------------------------------
+# the report object
+
+@dataclass
+class CheckReport:
+    """Result of :func:`budget.check.check`; SI units throughout (volts, seconds).
+
+    passed, verdict ("pass"/"fail"); worst: the worst case (driver, receiver,
+    edge, corner, metric, value, plus headroom [V], percent_of_swing,
+    violations, analysis); results: one dict per (driver, receiver, edge,
+    corner) with the JSON contract keys (DESIGN.md section 5) -- the nominal
+    design, plus, for each tolerance analysis, the worst variant of that
+    analysis for each (driver, receiver, edge), never every sample; analyses:
+    settings and summaries of each analysis run; variants: label -> the
+    values of every variant named in results or worst; coverage: what part
+    of the tolerance box was evaluated (and, if not all of it, what to run);
+    out_of_box: design values outside their tolerance interval.
+    """
+    design: str
+    source: str
+    signaling: str
+    passed: bool
+    worst: dict
+    results: list
+    analyses: dict
+    tolerances: dict
+    budget: dict
+    variants: dict
+    units: dict = field(default_factory=dict)
+    receivers: list = field(default_factory=list)
+    coverage: dict = field(default_factory=dict)
+    out_of_box: list = field(default_factory=list)
+
+    @property
+    def verdict(self) -> str:
+        return "pass" if self.passed else "fail"
+
+    def to_json(self) -> dict:
+        """The versioned JSON document (schema "busbudget.check/1"); no NaN anywhere."""
+        return to_json(self)
+
+    def text(self) -> str:
+        """Readable report: per-receiver table, worst case, tolerance summaries, verdict, assumptions."""
+        return to_text(self)
+
+    def rows(self, *, driver=None, receiver=None, edge=None, analysis=None) -> list:
+        """Results filtered by driver, receiver, edge and/or analysis."""
+        return [r for r in self.results
+                if (driver is None or r["driver"] == driver) and (receiver is None or r["receiver"] == receiver)
+                and (edge is None or r["edge"] == edge) and (analysis is None or r["analysis"] == analysis)]
+
+
+# ---------------------------------------------------------------------------
+# result rows and the worst case in words
+
+def _opt(x):
+    x = float(x)
+    return None if not math.isfinite(x) else x
+
+
+def result_row(analysis: str, label, m, levels, bits: int, head: float, driver: str, receiver: str,
+               edge: str) -> dict:
+    """One result (JSON contract keys plus extensions) from a metrics vector m, levels (V_lo, V_hi) [V],
+    the violation bits and the headroom [V]."""
+    v_lo, v_hi = (float(x) for x in levels)
+    bits = int(bits)
+    rising = edge == "rise"
+    swing = abs(v_hi - v_lo)
+    margin = float(m[mk.MARGIN])
+    return {
+        "driver": driver, "receiver": receiver, "edge": edge, "corner": label,
+        "v_lo": v_lo, "v_hi": v_hi,
+        "t_switch": _opt(m[mk.T_SWITCH]), "t_valid": _opt(m[mk.T_VALID]),
+        "flight_min": _opt(m[mk.FLIGHT_MIN]), "flight_max": _opt(m[mk.FLIGHT_MAX]),
+        "overshoot": _opt(m[mk.OVERSHOOT]), "undershoot": _opt(m[mk.UNDERSHOOT]),
+        "ringback": _opt(m[mk.RINGBACK]), "monotonic": bool(m[mk.MONOTONIC] > 0.5),
+        "settle_time": _opt(m[mk.SETTLE_TIME]),
+        "margin_high": _opt(margin) if rising else None, "margin_low": None if rising else _opt(margin),
+        "v_peak": _opt(m[mk.V_PEAK]), "v_trough": _opt(m[mk.V_TROUGH]),
+        "pass": bits == 0, "violations": mk.violation_list(bits),
+        # extensions
+        "analysis": analysis,
+        "margin_percent_of_swing": _opt(100.0 * margin / swing) if swing > 0 else None,
+        "headroom": _opt(head),
+    }
+
+
+def worst_summary(row: dict, limit: int, v_max, v_min, min_margin: float) -> dict:
+    """The bus-level worst case from its result row and the LIMIT_* code of its headroom.
+
+    v_max, v_min [V] (None: the part gives none); min_margin [V].  Names the
+    metric that limits it (or, when only a non-margin violation fails it, that
+    violation) and by how much.
+    """
+    rising = row["edge"] == "rise"
+    margin = row["margin_high"] if rising else row["margin_low"]
+    swing = abs(row["v_hi"] - row["v_lo"])
+    head = row["headroom"]
+    if limit == mk.LIMIT_V_MAX:
+        metric, value, lim = "overshoot", row["overshoot"], f"v_peak <= v_max = {v_max:g} V"
+    elif limit == mk.LIMIT_V_MIN:
+        metric, value, lim = "undershoot", row["undershoot"], f"v_trough >= v_min = {v_min:g} V"
+    else:
+        metric, value, lim = ("margin_high" if rising else "margin_low"), margin, f"margin >= {min_margin:g} V"
+    if head is not None and head >= 0 and not row["pass"]:
+        # only a non-margin violation (non-monotonic edge, never settled): name it
+        viol = row["violations"][0]
+        metric, value, lim = {"never valid": ("t_valid", None, "must become valid"),
+                              "non-monotonic edge": ("monotonic", False, "monotonic through VIL..VIH"),
+                              "not settled in window": ("settle_time", None, "must settle in the window"),
+                              }.get(viol, (metric, value, lim))
+    return {
+        "driver": row["driver"], "receiver": row["receiver"], "edge": row["edge"], "corner": row["corner"],
+        "metric": metric, "value": value,
+        # extensions
+        "headroom": head, "percent_of_swing": 100.0 * head / swing if swing > 0 and head is not None else None,
+        "margin": margin, "margin_percent_of_swing": row["margin_percent_of_swing"], "limit": lim,
+        "violations": list(row["violations"]), "analysis": row["analysis"],
+    }
+
 
 RESULTS_NOTE = (
     "one result per (driver, receiver, edge) for each analysis: the nominal design, and for corners, "
@@ -38,6 +184,11 @@ JSON_EXTENSIONS = {
     "tolerances": "the tolerance box: path -> {min, max, unit}",
     "budget": "allocations (V or fraction of swing), min_margin [V], settle_band [-]",
     "variants": "label -> values [SI] of every variant named in results, worst and analyses",
+    "coverage": "what was evaluated: nominal, corners run and how many the box has, Monte Carlo samples, "
+                "search candidates; all_corners; summary (the words of the verdict line); note: what to run "
+                "when the default analysis did not cover the tolerance box",
+    "out_of_box": "design values outside their tolerance interval: [{path, value, min, max}] (SI); "
+                  "evaluated as given, flagged",
     "assumptions / safety": "what the model assumes; results are estimates",
 }
 
@@ -74,6 +225,8 @@ def to_json(report: CheckReport) -> dict:
         "tolerances": tol,
         "budget": report.budget,
         "variants": report.variants,
+        "coverage": report.coverage,
+        "out_of_box": report.out_of_box,
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
         "assumptions": list(ASSUMPTIONS),
         "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
@@ -121,6 +274,13 @@ def pct(x) -> str:
     return f"({x:.1f}%)"
 
 
+def worst_row(rows) -> int:
+    """Index of the worst of some result rows, by the one rule (budget.kernels.metrics.worst_along)."""
+    bits = np.array([0 if r["pass"] else 1 for r in rows])
+    head = np.array([math.inf if r["headroom"] is None else r["headroom"] for r in rows], dtype=float)
+    return int(mk.worst_along(bits, head))
+
+
 def _receiver_lines(report: CheckReport):
     """Per receiver: worst figures over every driver, edge and analysis."""
     out = []
@@ -140,7 +300,7 @@ def _receiver_lines(report: CheckReport):
         fmax = [r["flight_max"] for r in rows]
         settle = [r["settle_time"] for r in rows]
         ringback_never = any(r["ringback"] is None for r in rows)
-        limiting = min(rows, key=lambda r: (r["pass"], r["headroom"] if r["headroom"] is not None else math.inf))
+        limiting = rows[worst_row(rows)]
         out.append({
             "receiver": name,
             "margin_high": f"{mh['margin_high']:+.3f} {pct(mh['margin_percent_of_swing'])}" if mh else "-",
@@ -197,6 +357,7 @@ def to_text(report: CheckReport) -> str:
     if "search" in a:
         done.append(f"worst-case search {a['search']['variants']} candidates")
     L.append("analyses: " + ", ".join(done))
+    cov = report.coverage or {}
     b = report.budget
     alloc = [f"{n} {si(x['value'], 'V')}" if x["unit"] == "V" else f"{n} {100 * x['value']:.3g}% of swing"
              for n, x in b["allocations"].items()]
@@ -234,6 +395,14 @@ def to_text(report: CheckReport) -> str:
         more = f" and {len(failing) - 8} more" if len(failing) > 8 else ""
         L.append(f"failing (driver->receiver edge): {listed}{more}")
 
+    if report.out_of_box:
+        L.append("")
+        L.append("values outside the tolerance box (evaluated as given; check the measurement or widen the box):")
+        for o in report.out_of_box:
+            unit = report.units.get(o["path"], "")
+            L.append(f"   {o['path']} = {si(o['value'], unit) if isinstance(o['value'], float) else o['value']}"
+                     f", box {si(o['min'], unit)} .. {si(o['max'], unit)}")
+
     if len(a) > 1:
         L.append("")
         L.append("tolerances:")
@@ -259,13 +428,16 @@ def to_text(report: CheckReport) -> str:
                      ", no case below the worst corner")
         L.append(line)
 
+    if cov.get("note"):
+        L.append("")
+        L.append(f"NOT COVERED: {cov['note']}")
     L.append("")
+    scope = cov.get("summary") or ("nominal design only" if len(a) == 1 else "across the analysed tolerances")
     if report.passed:
-        scope = "nominal design only" if len(a) == 1 else "across the analysed tolerances"
         L.append(f"VERDICT: PASS - every receiver keeps its margin and ratings, whichever device drives ({scope})")
     else:
         L.append(f"VERDICT: FAIL - {w['driver']} -> {w['receiver']}, {w['edge']} edge, {w['corner']}: "
-                 f"{w['metric']} {shown}")
+                 f"{w['metric']} {shown} ({scope})")
     L.append("")
     L.append("What the model assumes:")
     for s in ASSUMPTIONS:
@@ -273,4 +445,5 @@ def to_text(report: CheckReport) -> str:
     return "\n".join(L) + "\n"
 
 
-__all__ = ["to_json", "to_text", "si", "RESULTS_NOTE", "JSON_EXTENSIONS"]
+__all__ = ["CheckReport", "to_json", "to_text", "result_row", "worst_summary", "worst_row", "si", "SCHEMA",
+           "RESULT_KEYS", "ASSUMPTIONS", "RESULTS_NOTE", "JSON_EXTENSIONS"]

@@ -13,6 +13,7 @@ workers and are gathered in order; results equal the local run bit for bit.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
@@ -21,8 +22,10 @@ import numpy as np
 from .errors import ArgumentError
 from .kernels import metrics as mk
 from .kernels.evaluate import evaluate_chunk
+from .metrics import allocation_terms
 from .model import Design
 from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
+from .roles import driving_part
 from .simulate import check_status
 
 DEFAULT_CHUNK = 4096
@@ -35,13 +38,15 @@ class SweepResult:
 
     Axes: variant (N), driver (``drivers``), edge (``edges``), receiver
     (``receivers``: every tap whose part can receive).  Entries where the
-    receiver is the driving tap itself are NaN (metrics, margin) / 0 (bits)
-    and masked out of ``worst_margin`` and ``passed``.
+    receiver is the driving tap itself are NaN (metrics, margin, headroom) /
+    0 (bits) and masked out of every summary.
 
     metrics : [N, n_drv, n_edge, n_rcv, 12] float, see budget.kernels.metrics
         (None with keep="margin")
     margin : [N, n_drv, n_edge, n_rcv] [V]
     bits : [N, n_drv, n_edge, n_rcv] int, VIOL_* bit sets
+    headroom : [N, n_drv, n_edge, n_rcv] [V], lowest of margin - min_margin,
+        v_max - v_peak, v_trough - v_min (budget.kernels.metrics.headroom)
     levels : [N, n_drv, n_edge, n_rcv, 2] V_lo, V_hi at each pin [V] (None with keep="margin")
     """
     drivers: tuple
@@ -55,6 +60,7 @@ class SweepResult:
     valid: np.ndarray  # [n_drv, n_rcv] bool: receiver != driver
     dt: dict = field(default_factory=dict)
     t_stop: dict = field(default_factory=dict)
+    headroom: np.ndarray | None = None
 
     @property
     def passed(self) -> np.ndarray:
@@ -67,11 +73,46 @@ class SweepResult:
         m = np.where(self.valid[None, :, None, :], self.margin, np.inf)
         return m.min(axis=(1, 2, 3))
 
+    # the worst-case rule (budget.kernels.metrics.worst_along): a result with a
+    # violation before one without, then the lowest headroom, then the first in
+    # (driver, edge, receiver) order
+
+    def worst_indices(self, variant: int = 0) -> tuple[int, int, int] | None:
+        """(driver, edge, receiver) indices of the worst case of one variant; None if there is no case."""
+        head = np.where(self.valid[:, None, :], self.headroom[variant], np.nan).ravel()
+        if np.all(np.isnan(head)):
+            return None
+        k = int(mk.worst_along(self.bits[variant].ravel(), head))
+        d, e, r = np.unravel_index(k, self.bits.shape[1:])
+        return int(d), int(e), int(r)
+
     def worst_index(self, variant: int = 0):
-        """(driver, edge, receiver) names of the lowest margin of one variant."""
-        m = np.where(self.valid[:, None, :], self.margin[variant], np.inf)
-        d, e, r = np.unravel_index(int(np.argmin(m)), m.shape)
+        """(driver, edge, receiver) names of the worst case of one variant (see :meth:`worst_indices`)."""
+        idx = self.worst_indices(variant)
+        if idx is None:
+            raise ArgumentError("no (driver, receiver) case: every receiver is the driving tap")
+        d, e, r = idx
         return self.drivers[d], self.edges[e], self.receivers[r]
+
+    @property
+    def worst_headroom(self) -> np.ndarray:
+        """[N] headroom [V] of each variant's worst case (NaN if it has no case)."""
+        head = np.where(self.valid[None, :, None, :], self.headroom, np.nan).reshape(self.n_variants, -1)
+        k = mk.worst_along(self.bits.reshape(self.n_variants, -1), head, axis=1)
+        return np.take_along_axis(head, k[:, None], axis=1)[:, 0]
+
+    @property
+    def lowest_headroom(self) -> np.ndarray:
+        """[N] lowest headroom [V] over every driver, edge and receiver (+inf if no case)."""
+        h = np.where(self.valid[None, :, None, :], self.headroom, np.inf)
+        return h.min(axis=(1, 2, 3))
+
+    def worst_variant(self) -> int:
+        """Index of the worst variant: the one holding the worst case over all variants."""
+        head = np.where(self.valid[None, :, None, :], self.headroom, np.nan).reshape(self.n_variants, -1)
+        bits = self.bits.reshape(self.n_variants, -1)
+        k = int(mk.worst_along(bits.ravel(), head.ravel()))
+        return k // head.shape[1]
 
 
 def _as_values(design: Design, values: Mapping[str, Sequence[float]] | None):
@@ -115,8 +156,7 @@ def _receiver_arrays(design: Design, receivers, n):
     def arr(x, default):
         return np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,))
     vil, vih, vmax, vmin, av, af = [], [], [], [], [], []
-    alloc_v = sum(v for v, unit in design.budget.allocations.values() if unit == "V")
-    alloc_f = sum(v for v, unit in design.budget.allocations.values() if unit == "swing")
+    alloc_v, alloc_f = allocation_terms(design.budget)
     for r in receivers:
         part = design.parts[design.tap(r).part]
         vil.append(arr(part.vil, 0))
@@ -126,6 +166,22 @@ def _receiver_arrays(design: Design, receivers, n):
         av.append(arr(alloc_v, 0))
         af.append(arr(alloc_f, 0))
     return [np.ascontiguousarray(np.stack(x)) if x else np.zeros((0, n)) for x in (vil, vih, vmax, vmin, av, af)]
+
+
+def limiting_term(design: Design, receiver: str, m, values: Mapping[str, float] | None = None) -> int:
+    """LIMIT_* code of the term that sets the headroom of metrics vector ``m`` at tap ``receiver``.
+
+    ``values``: the variant's overrides {path: value [SI]} (its v_max / v_min are
+    used when given); the arithmetic is the kernel's
+    (:func:`budget.kernels.metrics.headroom_terms`).
+    """
+    part = design.parts[design.tap(receiver).part]
+    values = values or {}
+    lim = []
+    for key, default in (("v_max", math.inf), ("v_min", -math.inf)):
+        x = values.get(f"parts.{part.name}.{key}", getattr(part, key))
+        lim.append(default if x is None else float(x))
+    return int(mk.headroom_terms(np.asarray(m, dtype=float), lim[0], lim[1], float(design.budget.min_margin))[1])
 
 
 def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:
@@ -148,7 +204,8 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
              envelope: Design | None = None):
     """Evaluate every variant of ``design`` (scalar or array values) for one driver and edge.
 
-    Returns (receivers, metrics [N, n_rcv, 12], bits [N, n_rcv], levels [N, n_rcv, 2]).
+    Returns (receivers, metrics [N, n_rcv, 12], bits [N, n_rcv], headroom [N, n_rcv] [V],
+    levels [N, n_rcv, 2]).
     """
     n = design.batch_size or 1
     net = flatten(design, driver, edge, dt=dt, t_stop=t_stop, envelope=envelope)
@@ -158,6 +215,7 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
     t_ref = t_ref_of(design, driver, edge, n)
     metrics = np.empty((n, len(receivers), mk.N_METRICS))
     bits = np.empty((n, len(receivers)), dtype=np.int64)
+    head = np.empty((n, len(receivers)))
     levels = np.empty((n, len(receivers), 2))
     status = np.empty(n, dtype=np.int64)
     evaluate_chunk(net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
@@ -167,9 +225,9 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
                    net.src_r, net.src_v, net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp,
                    net.dt, net.n_steps, edge == "rise", rcv_out, vil, vih, vmax, vmin, av, af,
                    float(design.budget.settle_band), float(design.budget.min_margin), t_ref,
-                   metrics, bits, levels, status)
+                   metrics, bits, head, levels, status)
     check_status(status, net, design)
-    return receivers, metrics, bits, levels
+    return receivers, metrics, bits, head, levels
 
 
 def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, receivers, dts, tss,
@@ -180,18 +238,20 @@ def _run_chunk(design: Design, values: dict, lo: int, hi: int, drivers, edges, r
     nd, ne, nr = len(drivers), len(edges), len(receivers)
     margin = np.full((n, nd, ne, nr), np.nan)
     bits = np.zeros((n, nd, ne, nr), dtype=np.int64)
+    head = np.full((n, nd, ne, nr), np.nan)
     metrics = np.full((n, nd, ne, nr, mk.N_METRICS), np.nan) if keep == "all" else None
     levels = np.full((n, nd, ne, nr, 2), np.nan) if keep == "all" else None
     for i, drv in enumerate(drivers):
         for j, e in enumerate(edges):
-            rcv, m, bt, lv = evaluate(d, drv, e, dt=dts[e], t_stop=tss[e], envelope=envelope)
+            rcv, m, bt, hd, lv = evaluate(d, drv, e, dt=dts[e], t_stop=tss[e], envelope=envelope)
             cols = [receivers.index(r) for r in rcv]
             margin[:, i, j, cols] = m[:, :, mk.MARGIN]
             bits[:, i, j, cols] = bt
+            head[:, i, j, cols] = hd
             if metrics is not None:
                 metrics[:, i, j, cols, :] = m
                 levels[:, i, j, cols, :] = lv
-    return margin, bits, metrics, levels
+    return margin, bits, metrics, levels, head
 
 
 def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *,
@@ -227,9 +287,7 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
     if not drivers:
         raise ArgumentError("the design has no tap whose part can drive")
     for d in drivers:
-        tap = design.tap(d)
-        if not design.parts[tap.part].can_drive:
-            raise ArgumentError(f"tap {d!r} cannot drive (part role {design.parts[tap.part].role!r})")
+        driving_part(design, d)
     if chunk < 1:
         raise ArgumentError(f"chunk must be a positive number of variants, got {chunk!r}")
     values, n = _as_values(design, values)
@@ -242,12 +300,13 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
     nd, ne, nr = len(drivers), len(edges), len(receivers)
     margin = np.empty((n, nd, ne, nr))
     bits = np.empty((n, nd, ne, nr), dtype=np.int64)
+    head = np.empty((n, nd, ne, nr))
     metrics = np.empty((n, nd, ne, nr, mk.N_METRICS)) if keep == "all" else None
     levels = np.empty((n, nd, ne, nr, 2)) if keep == "all" else None
     bounds = [(lo, min(n, lo + chunk)) for lo in range(0, n, chunk)]
 
     def store(lo, hi, res):
-        margin[lo:hi], bits[lo:hi] = res[0], res[1]
+        margin[lo:hi], bits[lo:hi], head[lo:hi] = res[0], res[1], res[4]
         if metrics is not None:
             metrics[lo:hi], levels[lo:hi] = res[2], res[3]
 
@@ -270,4 +329,5 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
                 progress(done, n)
     valid = np.array([[r != d for r in receivers] for d in drivers], dtype=bool).reshape(nd, nr)
     return SweepResult(drivers=drivers, edges=edges, receivers=receivers, n_variants=n, margin=margin,
-                       bits=bits, metrics=metrics, levels=levels, valid=valid, dt=dts, t_stop=tss)
+                       bits=bits, metrics=metrics, levels=levels, valid=valid, dt=dts, t_stop=tss,
+                       headroom=head)

@@ -60,8 +60,12 @@
 extern "C" {
 #endif
 
-/* Version of this header's API; compare with what bb_version() reports. */
-enum { BB_API_VERSION = 1 };
+/* Version of this header's API; compare with what bb_version() reports.
+   2: bb_result gained worst_headroom, worst_limit and n_out_of_box (appended),
+      its driver / receiver / edge name the worst case by the one rule (see
+      bb_result), and bb_out_of_box_count / bb_out_of_box were added.  A
+      program compiled against version 1 must be recompiled (bb_result grew). */
+enum { BB_API_VERSION = 2 };
 
 /* Status codes returned by every function (see STATUS CODES above). */
 enum bb_status {
@@ -94,6 +98,14 @@ enum bb_violation {
     BB_VIOL_NOT_SETTLED = 32    /* never settles into the settle band in the window */
 };
 
+/* Which term sets a case's headroom (bb_result.worst_limit); same values as
+   the Python package's budget.kernels.metrics.LIMIT_* (checked at start-up). */
+enum bb_limit {
+    BB_LIMIT_MARGIN = 0,        /* margin - min_margin */
+    BB_LIMIT_V_MAX = 1,         /* v_max - v_peak (the part's absolute maximum) */
+    BB_LIMIT_V_MIN = 2          /* v_trough - v_min (the part's absolute minimum) */
+};
+
 /* Size of the name fields in bb_result (bytes, with the terminating NUL). */
 enum { BB_NAME_SIZE = 64 };
 
@@ -105,11 +117,19 @@ typedef int bb_handle;
 
 /* Outcome of bb_check(): the nominal design (with every value set so far),
    every driver x both edges x every receiver.  Tap indices count the design
-   file's [[tap]] entries from 0 (see bb_tap_name). */
+   file's [[tap]] entries from 0 (see bb_tap_name).
+
+   The worst case is chosen by the rule the Python check and sweep use: a
+   case with any violation before one without, then the lowest headroom, then
+   the first in (driver, edge, receiver) order.  The headroom [V] of a case is
+   the lowest of margin - min_margin, v_max - v_peak (if the part gives
+   v_max) and v_trough - v_min (if it gives v_min).  So the worst case need
+   not hold worst_margin (e.g. when an undershoot is closer to v_min than any
+   margin is to min_margin). */
 typedef struct bb_result {
     int passed;            /* 1: no violation anywhere; 0: at least one */
     double worst_margin;   /* [V] lowest noise margin over every case */
-    int driver;            /* tap index of the driver in the worst-margin case (-1: no case) */
+    int driver;            /* tap index of the driver in the worst case (-1: no case) */
     int receiver;          /* tap index of the receiver in that case (-1: no case) */
     int edge;              /* BB_RISE or BB_FALL for that case (-1: no case) */
     int n_cases;           /* (driver, edge, receiver) cases evaluated */
@@ -117,6 +137,10 @@ typedef struct bb_result {
     int violations;        /* OR of the bb_violation bits over every case */
     char driver_name[BB_NAME_SIZE];   /* tap names, NUL-terminated; a name longer */
     char receiver_name[BB_NAME_SIZE]; /* than 63 bytes is cut (use the index) */
+    /* appended in API version 2 */
+    double worst_headroom; /* [V] headroom of the worst case (NaN: no case) */
+    int worst_limit;       /* bb_limit: the term that sets worst_headroom (-1: no case) */
+    int n_out_of_box;      /* values outside the design's [tolerances] box (see bb_out_of_box) */
 } bb_result;
 
 /* Version query.  Writes the API version the library was built with into
@@ -195,6 +219,21 @@ int bb_tap_name(bb_handle design, int index, char *buf, size_t size);
    Returns BB_OK (passes), BB_FAIL (at least one violation), BB_ERR_NULL,
    BB_ERR_HANDLE, BB_ERR_ARGUMENT (no tap can drive), BB_ERR_SIMULATION. */
 int bb_check(bb_handle design, bb_result *result);
+
+/* Number of the design's values (with every bb_set so far) that lie outside
+   their [tolerances] interval, into *count (0 without a [tolerances] table).
+   Such values are evaluated as given; a rig should report them (a wrong
+   measurement, or a unit outside the spread the design was signed off for).
+   Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE. */
+int bb_out_of_box_count(bb_handle design, int *count);
+
+/* Entry index (0 .. count-1, [tolerances] order) of the out-of-box values:
+   its dotted path into path (size bytes with the NUL), its value and the
+   interval's min and max [SI] into *value, *min, *max (any of the three may
+   be NULL).  Returns BB_OK, BB_ERR_NULL (path NULL), BB_ERR_HANDLE,
+   BB_ERR_ARGUMENT (index out of range), BB_ERR_SIZE (path then holds ""). */
+int bb_out_of_box(bb_handle design, int index, char *path, size_t size,
+                  double *value, double *min, double *max);
 
 /* Worst margin [V] each tap sees as a receiver, over every driver and both
    edges, into margins[index] for each tap index; NaN for taps that cannot

@@ -24,6 +24,8 @@ import pytest
 
 import budget
 from budget import capi
+from budget.analyses import out_of_box
+from budget.check import check
 from budget.sweep import sweep
 
 pytestmark = pytest.mark.cexport
@@ -136,8 +138,43 @@ def test_status_codes_never_use_zero_for_success():
 
 
 def test_violation_bits_match_the_kernels():
-    for name, bit in capi.VIOLATION_BITS.items():
+    for name, bit in {**capi.VIOLATION_BITS, **capi.LIMIT_CODES}.items():
         assert CONST[name] == bit, name
+
+
+# ---------------------------------------------------------------------------
+# one worst case: text report, JSON, sweep and bb_check agree on every bundled and test design
+
+ALL_DESIGNS = [budget.example_path(n) for n in budget.EXAMPLES] + sorted((ROOT / "tests" / "designs").glob("*.toml"))
+LIMIT_OF_METRIC = {"margin_high": "BB_LIMIT_MARGIN", "margin_low": "BB_LIMIT_MARGIN",
+                   "overshoot": "BB_LIMIT_V_MAX", "undershoot": "BB_LIMIT_V_MIN"}
+
+
+@pytest.mark.parametrize("design_file", ALL_DESIGNS, ids=[p.stem for p in ALL_DESIGNS])
+def test_report_json_sweep_and_c_name_the_same_worst_case(programs, design_file):
+    design = budget.load(design_file)
+    report = check(design, nominal=True)
+    w = report.worst
+    doc = report.to_json()
+    text = report.text()
+    # the JSON and the text say what the report object says
+    assert {k: doc["worst"][k] for k in ("driver", "receiver", "edge", "metric")} == \
+        {k: w[k] for k in ("driver", "receiver", "edge", "metric")}
+    assert f"receiver {w['receiver']} when {w['driver']} drives, {w['edge']} edge, nominal: {w['metric']} =" in text
+    # the sweep API
+    r = sweep(design)
+    assert r.worst_index(0) == (w["driver"], w["edge"], w["receiver"])
+    assert float(r.worst_headroom[0]) == pytest.approx(w["headroom"], abs=1e-12)
+    # the C library
+    got = parse_check(run(programs["api_probe"], "check", design_file).stdout)
+    names = design.tap_names
+    _, _, _, drv, rcv, edge, *_, head, limit, _ = got["check"]
+    assert (names[int(drv)], names[int(rcv)], ("rise", "fall")[int(edge)]) == (w["driver"], w["receiver"], w["edge"])
+    assert same(float(head), float(r.worst_headroom[0]))
+    if w["metric"] in LIMIT_OF_METRIC:
+        assert int(limit) == CONST[LIMIT_OF_METRIC[w["metric"]]]
+    else:   # a non-headroom violation names the worst case: the headroom is still positive
+        assert w["headroom"] >= 0 and w["violations"]
 
 
 @pytest.mark.skipif(shutil.which("g++") is None, reason="no C++ compiler to check the header with")
@@ -160,7 +197,7 @@ def test_runtime_starts_and_reports_version(programs):
 # numbers: C against Python, bit for bit
 
 def parse_check(stdout: str) -> dict:
-    out = {"set": {}, "taps": [], "rmargin": {}, "table": {}, "param": {}}
+    out = {"set": {}, "taps": [], "rmargin": {}, "table": {}, "param": {}, "oob": []}
     for line in stdout.splitlines():
         f = line.split()
         if f[0] == "set":
@@ -176,12 +213,17 @@ def parse_check(stdout: str) -> dict:
             out["table"][int(f[1])] = float(f[2])
         elif f[0] == "param":
             out["param"][f[1]] = float(f[2])
+        elif f[0] == "oob-count":
+            out["oob_count"] = int(f[1])
+        elif f[0] == "oob":
+            out["oob"].append({"path": f[1], "value": float(f[2]), "min": float(f[3]), "max": float(f[4])})
     return out
 
 
 CHECK_CASES = [
     pytest.param(SHORT, ["lines.route.z0=47.5", "parts.hub_ctrl.r_high=21.5"], id="short-bus-pass"),
-    pytest.param(SHORT, ["lines.route.z0=55", "termination.0.r=2"], id="short-bus-fail"),
+    # both outside the box (z0 40.5..49.5 ohm, termination 5 % of its nominal): flagged, still evaluated
+    pytest.param(SHORT, ["lines.route.z0=55", "termination.0.r=2"], id="short-bus-fail-out-of-box"),
     pytest.param(BACKPLANE, ["lines.backplane.z0=52.5", "tap.SLOT3.stub.length=0.031"], id="backplane"),
 ]
 
@@ -194,13 +236,18 @@ def test_check_and_margins_match_python(programs, design_file, settings):
     names = design.tap_names
     n = len(names)
 
-    rc, passed, worst, drv, rcv, edge, n_cases, n_failing, violations, drv_name, rcv_name = got["check"]
+    (rc, passed, worst, drv, rcv, edge, n_cases, n_failing, violations, drv_name, rcv_name, head, limit,
+     n_oob) = got["check"]
     assert int(rc) == (CONST["BB_OK"] if r.passed[0] else CONST["BB_FAIL"])
     assert int(passed) == int(r.passed[0])
     assert same(float(worst), float(r.worst_margin[0]))
     w_drv, w_edge, w_rcv = r.worst_index(0)
     assert (int(drv), int(rcv), int(edge)) == (names.index(w_drv), names.index(w_rcv), ("rise", "fall").index(w_edge))
     assert (drv_name, rcv_name) == (w_drv, w_rcv)
+    assert same(float(head), float(r.worst_headroom[0]))
+    assert 0 <= int(limit) <= 2
+    assert int(n_oob) == got["oob_count"] == len(got["oob"]) == len(out_of_box(design))
+    assert got["oob"] == out_of_box(design)
     valid = np.broadcast_to(r.valid[:, None, :], r.margin.shape[1:])
     assert int(n_cases) == valid.sum()
     assert int(n_failing) == np.count_nonzero(r.bits[0][valid])
@@ -295,6 +342,9 @@ ERROR_CASES = [
     ("receiver_margins_null", "BB_ERR_NULL", "margins"),
     ("receiver_margins_wrong_count", "BB_ERR_SIZE", "n_taps = 4"),
     ("margin_table_wrong_count", "BB_ERR_SIZE", "= 32"),
+    ("out_of_box_count_null", "BB_ERR_NULL", "count"),
+    ("out_of_box_null_path", "BB_ERR_NULL", "path"),
+    ("out_of_box_index_out_of_range", "BB_ERR_ARGUMENT", "0 value(s) outside"),
     ("waveform_null_n_samples", "BB_ERR_NULL", "n_samples"),
     ("waveform_null_driver", "BB_ERR_NULL", "driver"),
     ("waveform_null_arrays", "BB_ERR_NULL", "is NULL"),
@@ -406,10 +456,18 @@ def test_rig_example_passes(programs):
 
 def test_rig_example_fails_with_exit_1(programs):
     proc = run(programs["rig_check"], SHORT, "lines.route.z0=55", "termination.0.r=2", expect=1)
-    r = sweep(budget.load(SHORT).with_values({"lines.route.z0": 55.0, "termination.0.r": 2.0}))
+    unit = budget.load(SHORT).with_values({"lines.route.z0": 55.0, "termination.0.r": 2.0})
+    r = sweep(unit)
     assert not bool(r.passed[0])
     assert "verdict: FAIL" in proc.stdout
     assert f"worst margin: {r.worst_margin[0]:.4f} V" in proc.stdout
+    drv, edge, rcv = r.worst_index(0)
+    assert (f"worst case: driver {drv}, receiver {rcv}, {'rising' if edge == 'rise' else 'falling'} edge, "
+            f"headroom {r.worst_headroom[0]:.4f} V") in proc.stdout
+    # both measured values lie outside the design's box: evaluated, and said so
+    flagged = [line for line in proc.stdout.splitlines() if line.startswith("outside the tolerance box: ")]
+    assert [line.split()[4] for line in flagged] == [o["path"] for o in out_of_box(unit)]
+    assert [o["path"] for o in out_of_box(unit)] == ["lines.route.z0", "termination.0.r"]
 
 
 @pytest.mark.parametrize("args, text", [

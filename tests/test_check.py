@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 import budget
+from budget.analyses import out_of_box
 from budget.check import RESULT_KEYS, SCHEMA, check
 from budget.errors import ArgumentError
 from budget.kernels import metrics as mk
@@ -216,16 +217,17 @@ def test_tolerance_analyses_list_only_the_worst_variant_per_case():
         assert r["corner"] in report.variants        # every named variant has its values
     doc = report.to_json()
     assert "not listed" in doc["results_note"]
-    # the listed corner is the worst corner for that edge: no corner has less headroom
-    # (headroom = lowest of margin - min_margin, v_max - v_peak, v_trough - v_min)
+    # the listed corner is the worst corner for that edge (no violation anywhere here, so: no
+    # corner has less headroom; the headroom itself is checked against its definition in
+    # test_worst_case_is_the_same_in_check_and_sweep_on_robust_link)
     from budget.check import corner_values
     vals, _, _ = corner_values(design)
     every = sweep(design, vals)
+    assert every.passed.all()
     j = every.receivers.index("RX")
     for r in report.rows(analysis="corners"):
-        m = every.metrics[:, 0, every.edges.index(r["edge"]), j, :]
-        head = np.minimum.reduce([m[:, mk.MARGIN] - 0.0, 4.6 - m[:, mk.V_PEAK], m[:, mk.V_TROUGH] + 0.5])
-        assert r["headroom"] == pytest.approx(head.min(), abs=1e-9)
+        head = every.headroom[:, 0, every.edges.index(r["edge"]), j]
+        assert r["headroom"] == head.min()
         assert r["corner"] == f"corner {int(np.argmin(head)) + 1}"
 
 
@@ -262,10 +264,103 @@ def test_text_report_names_the_worst_case_and_states_assumptions():
 
 
 def test_bundled_backplane_passes_nominally():
-    report = budget.check(budget.example("backplane"))
+    report = budget.check(budget.example("backplane"), nominal=True)
     assert report.passed
     assert 0.0 < report.worst["headroom"] < 0.5
     assert len(report.results) == 8 * 7 * 2
+    assert report.coverage["summary"] == "nominal design only" and report.coverage["corners"] == 0
+    assert "(nominal design only)" in report.text()
+
+
+@pytest.mark.slow
+def test_bundled_backplane_fails_by_default_because_the_default_covers_the_box():
+    # 7 toleranced values: 128 corners x 8 drivers x 2 edges = 2048 simulations, within the default
+    # limit, so the default check evaluates them; the nominal design passes, 62 corners do not.
+    report = budget.check(budget.example("backplane"))
+    assert not report.passed
+    assert report.analyses["corners"]["variants"] == 128 and report.analyses["corners"]["default"]
+    assert report.analyses["corners"]["failed"] == 62
+    assert report.analyses["nominal"]["failed"] == 0
+    assert report.coverage["all_corners"] and report.coverage["summary"] == "nominal and all 128 tolerance corners"
+    assert report.worst["analysis"] == "corners" and report.worst["headroom"] < 0
+    assert "(nominal and all 128 tolerance corners)" in report.text()
+
+
+def test_measured_values_outside_the_box_are_evaluated_and_flagged():
+    # robust.toml: z0 50 ohm +-10 % -> box 45..55 ohm; a unit measured at 58 ohm is outside it,
+    # one at 46 ohm inside.
+    design = budget.load(DESIGNS / "robust.toml")
+    assert out_of_box(design) == []
+    unit = design.with_values({"lines.l.z0": 58.0, "parts.dst.c_pin": 4e-12})
+    assert out_of_box(unit) == [{"path": "lines.l.z0", "value": 58.0, "min": pytest.approx(45.0),
+                                 "max": pytest.approx(55.0)}]
+    report = check(unit, nominal=True)
+    doc = report.to_json()
+    assert [o["path"] for o in doc["out_of_box"]] == ["lines.l.z0"]
+    assert doc["out_of_box"][0]["value"] == 58.0
+    text = report.text()
+    assert "values outside the tolerance box" in text
+    assert "lines.l.z0 = 58 ohm, box 45 ohm .. 55 ohm" in text
+    # the value is used as given, not clipped to the box
+    assert report.rows(edge="rise")[0]["margin_high"] == pytest.approx(
+        float(sweep(unit).margin[0, 0, 0, 0]), abs=0)
+    inside = check(design.with_values({"lines.l.z0": 46.0}), nominal=True)
+    assert inside.out_of_box == [] and "outside the tolerance box" not in inside.text()
+    lo, hi = design.tolerances["lines.l.z0"]
+    assert out_of_box(design.with_values({"lines.l.z0": lo * (1 - 1e-13)})) == []   # rounding: inside
+    assert len(out_of_box(design.with_values({"lines.l.z0": lo * (1 - 1e-6)}))) == 1
+    assert len(out_of_box(design.with_values({"lines.l.z0": hi * (1 + 1e-6)}))) == 1
+
+
+def test_worst_case_is_the_same_in_check_and_sweep_on_robust_link():
+    # Before the one rule, check named TX->RX rise (undershoot, +0.500 V) and the sweep
+    # TX->RX fall (margin, +0.535 V).  The undershoot limit is the closer one:
+    # v_trough - v_min = 0 - (-0.5) = 0.5 V < margin_low 0.535 V.
+    design = budget.load(DESIGNS / "robust.toml")
+    report = check(design, nominal=True)
+    r = sweep(design)
+    w = report.worst
+    assert r.worst_index(0) == (w["driver"], w["edge"], w["receiver"]) == ("TX", "rise", "RX")
+    assert w["metric"] == "undershoot"
+    assert float(r.worst_headroom[0]) == pytest.approx(w["headroom"], abs=1e-15)
+    # headroom by its definition, from the sweep's own metrics
+    m = r.metrics[0, 0, :, 0, :]
+    by_hand = np.minimum.reduce([m[:, mk.MARGIN] - 0.0, 4.6 - m[:, mk.V_PEAK], m[:, mk.V_TROUGH] + 0.5])
+    np.testing.assert_array_equal(r.headroom[0, 0, :, 0], by_hand)
+
+
+ALL_DESIGNS = [budget.example_path(n) for n in budget.EXAMPLES] + sorted(DESIGNS.glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", ALL_DESIGNS, ids=[p.stem for p in ALL_DESIGNS])
+def test_default_check_and_one_flat_sweep_name_the_same_worst_case(path):
+    # The check keeps a worst result per analysis and (driver, edge, receiver), then picks the
+    # bus-level worst; one sweep over [nominal, corner 1, ...] with the flat rule must agree.
+    # (The same against the C library: tests/test_cexport.py.)
+    from budget.check import corner_values
+    design = budget.load(path)
+    report = check(design)
+    vals, _, codes = corner_values(design)
+    n = codes.shape[0] if vals else 0
+    assert report.coverage["corners"] == n
+    flat = sweep(design, {p: np.concatenate(([design.params[p]], a)) for p, a in vals.items()} or None)
+    v = flat.worst_variant()
+    assert report.worst["corner"] == ("nominal" if v == 0 else f"corner {v}")
+    assert flat.worst_index(v) == (report.worst["driver"], report.worst["edge"], report.worst["receiver"])
+    assert report.worst["headroom"] == pytest.approx(float(flat.worst_headroom[v]), abs=1e-12)
+    assert report.passed == bool(flat.passed.all())
+
+
+@pytest.mark.parametrize("bits, head, expected", [
+    ([0, 0, 0], [0.3, 0.1, 0.2], 1),                 # lowest headroom
+    ([0, 16, 0], [0.1, 0.4, 0.2], 1),                # a violation before any headroom
+    ([1, 1, 0], [-0.2, -0.3, 0.0], 1),               # among violations, lowest headroom
+    ([0, 0, 0], [0.1, 0.1, 0.1], 0),                 # ties: the first
+    ([0, 0, 0], [np.nan, 0.2, np.nan], 1),           # NaN: no such case
+    ([0, 0], [np.inf, np.inf], 0),
+], ids=["lowest", "violation-first", "violations-by-headroom", "tie-first", "nan-skipped", "all-inf"])
+def test_worst_rule(bits, head, expected):
+    assert int(mk.worst_along(np.array(bits), np.array(head))) == expected
 
 
 def test_differential_report_says_so():
@@ -287,6 +382,11 @@ BAD = [
     ("max-corners-zero", dict(corners=True, max_corners=0), "max_corners"),
     ("generations-zero", dict(search=True, search_generations=0), "search_generations"),
     ("progress-not-callable", dict(progress=3), "progress"),
+    ("nominal-with-corners", dict(nominal=True, corners=True), "nominal design alone"),
+    ("nominal-with-monte-carlo", dict(nominal=True, monte_carlo=5), "nominal design alone"),
+    ("nominal-with-search", dict(nominal=True, search=True), "nominal design alone"),
+    ("corners-not-bool", dict(corners="yes"), "corners must be True, False or None"),
+    ("nominal-not-bool", dict(nominal=1), "nominal must be True or False"),
 ]
 
 

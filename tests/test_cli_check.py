@@ -1,6 +1,8 @@
-"""`busbudget check` end to end: exit codes 0 pass / 1 fail / 2 bad input, text, JSON, files, progress."""
+"""`busbudget check` end to end: exit codes 0 pass / 1 fail / 2 bad input / 3 internal error, text, JSON,
+files, what the default covers, progress."""
 from __future__ import annotations
 
+import importlib
 import io
 import json
 import re
@@ -25,12 +27,85 @@ def run(capsys, *argv):
     return code, out, err
 
 
-def test_bundled_example_passes_with_exit_0(capsys):
-    code, out, err = run(capsys, "check", "example:backplane")
+def test_bundled_example_passes_nominally_with_exit_0(capsys):
+    code, out, err = run(capsys, "check", "example:backplane", "--nominal")
     assert code == 0
     assert "VERDICT: PASS" in out and "Kestrel eight-slot backplane" in out
+    assert out.count("(nominal design only)") == 1        # the verdict line says what was covered
     assert ">> " in out                                   # the worst receiver is marked
     assert err == ""
+
+
+def test_default_covers_every_corner_and_says_so(capsys):
+    # short bus: 5 toleranced values, one driver: 32 corners x 1 driver x 2 edges = 64 simulations
+    code, out, _ = run(capsys, "check", "example:short-bus", "--json")
+    doc = json.loads(out)
+    assert doc["schema"] == "busbudget.check/1"
+    assert doc["analyses"]["corners"]["variants"] == 32 and doc["analyses"]["corners"]["default"]
+    cov = doc["coverage"]
+    assert cov["all_corners"] and cov["corners"] == cov["corners_in_box"] == 32 and cov["note"] is None
+    assert code == (0 if doc["verdict"] == "pass" else 1)
+    code, out, _ = run(capsys, "check", "example:short-bus")
+    verdict = next(line for line in out.splitlines() if line.startswith("VERDICT"))
+    assert verdict.endswith("(nominal and all 32 tolerance corners)")
+
+
+def test_box_too_big_for_the_default_is_reported_not_covered(capsys, monkeypatch):
+    import budget.analyses
+    monkeypatch.setattr(budget.analyses, "DEFAULT_MAX_SIMULATIONS", 16)   # robust: 32 x 1 x 2 = 64
+    code, out, _ = run(capsys, "check", ROBUST)
+    assert code == 0
+    assert "NOT COVERED: the tolerance box has 32 corners, i.e. 64 simulations" in out
+    assert "--corners" in out and "--monte-carlo N" in out
+    assert "(nominal design only; the tolerance box was not covered)" in out
+    code, out, _ = run(capsys, "check", ROBUST, "--json")
+    cov = json.loads(out)["coverage"]
+    assert cov["corners"] == 0 and cov["corners_in_box"] == 32 and not cov["all_corners"]
+    assert "--monte-carlo N" in cov["note"]
+    code, out, _ = run(capsys, "check", ROBUST, "--corners")          # --corners still runs them all
+    assert "32 corners" in out and "NOT COVERED" not in out
+
+
+def test_nominal_and_corners_exclude_each_other(capsys):
+    code, out, err = run(capsys, "check", ROBUST, "--nominal", "--corners")
+    assert code == 2 and "not allowed with argument" in err
+    code, out, err = run(capsys, "check", ROBUST, "--nominal", "--monte-carlo", "5")
+    assert code == 2 and "nominal design alone" in err
+
+
+INTERNAL = [
+    ("zero-division", ZeroDivisionError("division by zero")),
+    ("plain-value-error", ValueError("not from busbudget")),
+    ("os-error", OSError("raised inside the engine")),
+]
+
+
+@pytest.mark.parametrize("exc", [i[1] for i in INTERNAL], ids=[i[0] for i in INTERNAL])
+def test_internal_errors_exit_3_with_one_line(capsys, monkeypatch, exc):
+    check_module = importlib.import_module("budget.check")   # budget.check is also the function
+
+    def broken(*args, **kwargs):
+        raise exc
+    monkeypatch.setattr(check_module, "check", broken)
+    monkeypatch.delenv("BUSBUDGET_DEBUG", raising=False)
+    code, out, err = run(capsys, "check", ROBUST)
+    assert code == 3 and out == ""
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert err.startswith(f"busbudget: internal error: {type(exc).__name__}: ")
+    assert "report it" in err
+    monkeypatch.setenv("BUSBUDGET_DEBUG", "1")
+    code, _, err = run(capsys, "check", ROBUST)
+    assert code == 3 and "Traceback" in err
+
+
+def test_package_errors_still_exit_2(capsys, monkeypatch):
+    from budget.errors import SimulationError
+
+    def broken(*args, **kwargs):
+        raise SimulationError("the nodal matrix is singular at node n3")
+    monkeypatch.setattr(importlib.import_module("budget.check"), "check", broken)
+    code, out, err = run(capsys, "check", ROBUST)
+    assert code == 2 and err == "busbudget: error: the nodal matrix is singular at node n3\n"
 
 
 def test_failing_design_exits_1_and_names_the_case(capsys):

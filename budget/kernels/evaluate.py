@@ -12,7 +12,7 @@ import numpy as np
 from numba import prange
 
 from ..jit import parallel_kernel
-from .metrics import N_METRICS, edge_metrics, violation_bits
+from .metrics import N_METRICS, edge_metrics, headroom, violation_bits
 from .transient import LANES, run_block
 
 
@@ -24,13 +24,14 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
                    drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps, rising,
                    rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
                    settle_frac, min_margin, t_ref,
-                   metrics_out, bits_out, levels_out, status):
+                   metrics_out, bits_out, head_out, levels_out, status):
     """Evaluate N variants (N = t_ref.shape[0]) for one driver and one edge.
 
     rcv_out[r]: index into out_node of receiver r; rcv_vil, rcv_vih, rcv_vmax,
     rcv_vmin [V], alloc_v [V] and alloc_frac [-] (of the receiver's swing) are
     ``[n_rcv, N]``; settle_frac [-]; min_margin [V]; t_ref [s] per variant.
     Writes metrics_out[N, n_rcv, N_METRICS], bits_out[N, n_rcv] (VIOL_*),
+    head_out[N, n_rcv] (headroom [V], see budget.kernels.metrics.headroom),
     levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
     """
     n = t_ref.shape[0]
@@ -71,6 +72,7 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
                 for k in range(N_METRICS):
                     metrics_out[b, r, k] = m[k]
                 bits_out[b, r] = violation_bits(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
+                head_out[b, r] = headroom(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
                 levels_out[b, r, 0] = v_lo
                 levels_out[b, r, 1] = v_hi
     return 0

@@ -284,6 +284,80 @@ def violation_list(bits: int) -> list:
     return [name for bit, name in VIOLATION_NAMES if bits & bit]
 
 
+# ---------------------------------------------------------------------------
+# headroom and "worst": the one ranking rule, shared by check, sweeps, plots and the C library
+#
+# The headroom [V] of one (variant, driver, edge, receiver) is the smallest of
+#   margin - min_margin,  v_max - v_peak (if the part gives v_max),  v_trough - v_min (if it gives v_min);
+# negative headroom is a violation (VIOL_MARGIN, VIOL_OVER_MAX or VIOL_UNDER_MIN).  The *worst* of
+# several results: one with any violation before one without, then the lowest headroom, then the
+# first in order (variant, driver, edge, receiver) -- see :func:`worst_along`.
+
+LIMIT_MARGIN = 0     # the headroom is margin - min_margin
+LIMIT_V_MAX = 1      # ... v_max - v_peak
+LIMIT_V_MIN = 2      # ... v_trough - v_min
+LIMIT_NAMES = ("margin", "v_max", "v_min")
+
+
+@kernel
+def headroom_terms(m, v_max, v_min, min_margin):
+    """(headroom [V], LIMIT_* of the term that sets it) for a metrics vector m.
+
+    v_max / v_min [V] are +-inf when the part gives none; min_margin [V].  On a
+    tie the earlier term (margin, then v_max, then v_min) is named.  Never NaN: an
+    undefined margin counts as -inf (a violation anyway).
+    """
+    h = m[MARGIN] - min_margin
+    if math.isnan(h):
+        h = -math.inf
+    which = LIMIT_MARGIN
+    hi = v_max - m[V_PEAK]
+    if hi < h:
+        h = hi
+        which = LIMIT_V_MAX
+    lo = m[V_TROUGH] - v_min
+    if lo < h:
+        h = lo
+        which = LIMIT_V_MIN
+    return h, which
+
+
+@kernel
+def headroom(m, v_max, v_min, min_margin):
+    """Headroom [V] of a metrics vector m (see :func:`headroom_terms`)."""
+    return headroom_terms(m, v_max, v_min, min_margin)[0]
+
+
+def worse(bits_a, head_a, bits_b, head_b):
+    """Elementwise: is result a strictly worse than result b?  (violation first, then lower headroom [V]).
+
+    NaN headroom (no such case) is never worse than anything; ties are not worse,
+    so the result met first stays the worst.
+    """
+    va = np.asarray(bits_a) != 0
+    vb = np.asarray(bits_b) != 0
+    ha = np.asarray(head_a, dtype=float)
+    hb = np.asarray(head_b, dtype=float)
+    hb = np.where(np.isnan(hb), np.inf, hb)
+    return ~np.isnan(ha) & ((va & ~vb) | ((va == vb) & (ha < hb)))
+
+
+def worst_along(bits, head, axis=0):
+    """Index along ``axis`` of the worst result by the rule above (NaN headroom: no case, never chosen
+    unless there is nothing else; ties: the lowest index)."""
+    bits = np.asarray(bits)
+    head = np.asarray(head, dtype=float)
+    exists = ~np.isnan(head)
+    viol = (bits != 0) & exists
+    cand = np.where(np.any(viol, axis=axis, keepdims=True), viol, exists)
+    key = np.where(cand, head, np.inf)
+    idx = np.argmin(key, axis=axis)
+    # all candidates at +inf headroom: argmin gave index 0, take the first candidate instead
+    first = np.argmax(cand, axis=axis)
+    picked = np.take_along_axis(cand, np.expand_dims(idx, axis), axis=axis).squeeze(axis)
+    return np.where(picked, idx, first)
+
+
 @kernel
 def ref_times(t_ramp, v0, r0, v1, r1, has_load, r_load, v_load, c_load, v_meas, has_meas, out):
     """Driver timing reference t_ref [s] for each variant (arrays over variants).

@@ -84,12 +84,22 @@ int main(int argc, char **argv)
         bb_close(design);
         return code;
     }
-    bb_close(design);
 
     printf("verdict: %s\n", status == BB_OK ? "PASS" : "FAIL");
-    printf("worst margin: %.4f V (driver %s, receiver %s, %s edge)\n", result.worst_margin,
-           result.driver_name, result.receiver_name, result.edge == BB_RISE ? "rising" : "falling");
+    printf("worst margin: %.4f V\n", result.worst_margin);
+    printf("worst case: driver %s, receiver %s, %s edge, headroom %.4f V to its %s limit\n",
+           result.driver_name, result.receiver_name, result.edge == BB_RISE ? "rising" : "falling",
+           result.worst_headroom, result.worst_limit == BB_LIMIT_V_MAX ? "v_max"
+                                  : result.worst_limit == BB_LIMIT_V_MIN ? "v_min" : "margin");
     printf("cases with a violation: %d of %d\n", result.n_failing, result.n_cases);
+    /* a measured value outside the design's tolerance box: evaluated as given, but say so */
+    for (i = 0; i < result.n_out_of_box; i++) {
+        char path[256];
+        double value, lo, hi;
+        if (bb_out_of_box(design, i, path, sizeof path, &value, &lo, &hi) == BB_OK)
+            printf("outside the tolerance box: %s = %g (box %g .. %g)\n", path, value, lo, hi);
+    }
+    bb_close(design);
     printf("(estimate from a linear model: confirm by measurement and with the part makers' data)\n");
     return status == BB_OK ? 0 : 1;
 }

@@ -88,8 +88,21 @@ static int cmd_check(const char *file, int n, char **args)
     status = bb_check(design, &r);
     if (status != BB_OK && status != BB_FAIL)
         return unexpected("bb_check", status);
-    printf("check %d %d %.17g %d %d %d %d %d %d %s %s\n", status, r.passed, r.worst_margin, r.driver,
-           r.receiver, r.edge, r.n_cases, r.n_failing, r.violations, r.driver_name, r.receiver_name);
+    printf("check %d %d %.17g %d %d %d %d %d %d %s %s %.17g %d %d\n", status, r.passed, r.worst_margin,
+           r.driver, r.receiver, r.edge, r.n_cases, r.n_failing, r.violations, r.driver_name,
+           r.receiver_name, r.worst_headroom, r.worst_limit, r.n_out_of_box);
+    {
+        int count = -1;
+        if ((status = bb_out_of_box_count(design, &count)) != BB_OK)
+            return unexpected("bb_out_of_box_count", status);
+        printf("oob-count %d\n", count);
+        for (i = 0; i < count; i++) {
+            double value, lo, hi;
+            if ((status = bb_out_of_box(design, i, name, sizeof name, &value, &lo, &hi)) != BB_OK)
+                return unexpected("bb_out_of_box", status);
+            printf("oob %s %.17g %.17g %.17g\n", name, value, lo, hi);
+        }
+    }
 
     if ((status = bb_tap_count(design, &n_taps)) != BB_OK)
         return unexpected("bb_tap_count", status);
@@ -253,6 +266,9 @@ static int cmd_errors(const char *file, const char *bad_file)
     report("receiver_margins_null", bb_receiver_margins(h, NULL, 4));
     report("receiver_margins_wrong_count", bb_receiver_margins(h, margins, 3));
     report("margin_table_wrong_count", bb_margin_table(h, margins, 4));
+    report("out_of_box_count_null", bb_out_of_box_count(h, NULL));
+    report("out_of_box_null_path", bb_out_of_box(h, 0, NULL, 16, NULL, NULL, NULL));
+    report("out_of_box_index_out_of_range", bb_out_of_box(h, 0, message, sizeof message, NULL, NULL, NULL));
 
     report("waveform_null_n_samples", bb_waveform(h, "CTRL", BB_RISE, "MEM1", NULL, NULL, 0, NULL));
     report("waveform_null_driver", bb_waveform(h, NULL, BB_RISE, "MEM1", NULL, NULL, 0, &n_samples));
