@@ -131,6 +131,50 @@ def cmd_plot(args) -> int:
     return EXIT_PASS
 
 
+def _cmd_line(args) -> int:
+    """``busbudget line KIND KEY=VALUE ...``: Z0 and delay of a cross-section from its geometry."""
+    import json
+    import warnings
+
+    from .geometry import KINDS, line
+
+    dims = {}
+    for item in args.dims:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            raise InputError(f"line: expected KEY=VALUE, got {item!r}; {args.kind} takes: "
+                             f"{', '.join(KINDS.get(args.kind, ())) or 'see --help'}")
+        value = value.strip()
+        try:  # a bare number is SI (er, or metres); anything else goes to the unit parser
+            dims[key.strip()] = float(value)
+        except ValueError:
+            dims[key.strip()] = value
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        cs = line(args.kind, **dims)
+    notes = [str(w.message) for w in caught]
+    if args.json:
+        sys.stdout.write(json.dumps({"schema": "busbudget.line/1", **cs.to_json(), "warnings": notes},
+                                    indent=2, allow_nan=False) + "\n")
+    else:
+        rows = [("kind", cs.kind, "")]
+        rows += [(k, f"{v:.6g}", "" if k == "er" else "m") for k, v in cs.dims.items()]
+        rows += [("z0", f"{cs.z0:.4f}", "ohm" + (" (odd mode)" if cs.z_odd is not None else "")),
+                 ("delay", f"{cs.delay * 1e9:.5f}", "ns/m"), ("er_eff", f"{cs.er_eff:.5f}", "")]
+        if cs.z_odd is not None:
+            rows += [("z_odd", f"{cs.z_odd:.4f}", "ohm"), ("z_even", f"{cs.z_even:.4f}", "ohm"),
+                     ("z_diff", f"{cs.z_diff:.4f}", "ohm"), ("er_eff_even", f"{cs.er_eff_even:.5f}", ""),
+                     ("delay_even", f"{cs.delay_even * 1e9:.5f}", "ns/m")]
+        width = max(len(r[0]) for r in rows)
+        for name, value, unit in rows:
+            print(f"{name:<{width}}  {value:>12}  {unit}".rstrip())
+        print(f"formula: {cs.formula}; quasi-static, lossless; an estimate to confirm with the "
+              "board maker's impedance data or a TDR measurement")
+    for note in notes:
+        print(f"warning: {note}", file=sys.stderr)
+    return EXIT_PASS
+
+
 def _count(text: str) -> int:
     try:
         n = int(text)
@@ -235,6 +279,18 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
     _analysis_options(pl)
     pl.set_defaults(func=cmd_plot)
+
+    ln = sub.add_parser(
+        "line", help="Z0 and delay per length of a cross-section from its geometry",
+        description="busbudget line KIND KEY=VALUE ... : quasi-static Z0 [ohm], delay [s/m] and effective "
+                    "permittivity of a line from its geometry.  Kinds and keys: microstrip w h t er; "
+                    "stripline w b t er (b ground-to-ground); coax d D er; two_wire d s er (s centre spacing); "
+                    "edge_coupled_microstrip w s h t er; edge_coupled_stripline w s b t er (s gap).  Lengths "
+                    "with units ('0.3 mm', '5 mil') or in metres; er plain.")
+    ln.add_argument("kind", help="cross-section kind")
+    ln.add_argument("dims", nargs="*", metavar="KEY=VALUE", help="dimensions, e.g. w='0.3 mm' h='0.2 mm'")
+    ln.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.line/1), SI units")
+    ln.set_defaults(func=_cmd_line)
     return p
 
 

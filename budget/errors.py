@@ -46,3 +46,12 @@ class SimulationError(BusBudgetError):
     For example a nodal matrix that is singular because part of the network has
     no path to ground.  The message names the part of the design involved.
     """
+
+
+class GeometryRangeWarning(UserWarning):
+    """A cross-section is outside the range its closed-form formula was fitted or proven for.
+
+    Issued by :func:`budget.geometry.line`; the result is still computed, but its
+    stated accuracy no longer applies.  The message names the formula, the
+    dimension ratio and the range.
+    """
