@@ -61,6 +61,7 @@ import warnings
 from dataclasses import dataclass, field
 from typing import Mapping
 
+import numpy as np
 from scipy.constants import c as C_LIGHT  # speed of light in vacuum [m/s] (exact, SI)
 from scipy.constants import epsilon_0, mu_0
 from scipy.special import ellipkm1
@@ -174,7 +175,8 @@ def _hj_widths(u: float, t_h: float, er: float) -> tuple[float, float]:
     """
     if t_h == 0.0:
         return u, u
-    du1 = t_h / math.pi * math.log(1.0 + 4.0 * math.e * math.tanh(math.sqrt(6.517 * u)) ** 2 / t_h)
+    # ln(1 + A/t) written as ln(t + A) - ln(t): no overflow for very thin strips
+    du1 = t_h / math.pi * (math.log(t_h + 4.0 * math.e * math.tanh(math.sqrt(6.517 * u)) ** 2) - math.log(t_h))
     dur = 0.5 * (1.0 + 1.0 / math.cosh(math.sqrt(er - 1.0))) * du1
     return u + du1, u + dur
 
@@ -239,8 +241,11 @@ def stripline_wheeler_z0(w: float, b: float, t: float, er: float) -> float:
     x = t / b
     if x > 0.0:
         m = 2.0 / (1.0 + (2.0 / 3.0) * x / (1.0 - x))
-        dw = (b - t) * x / (math.pi * (1.0 - x)) * (
-            1.0 - 0.5 * math.log((x / (2.0 - x)) ** 2 + (0.0796 * x / (w / b + 1.1 * x)) ** m))
+        # ln(p^2 + q^m) as a log-sum-exp, so that very thin strips do not underflow to ln(0)
+        lx = math.log(x)
+        log_sum = float(np.logaddexp(2.0 * (lx - math.log(2.0 - x)),
+                                     m * (math.log(0.0796) + lx - math.log(w / b + 1.1 * x))))
+        dw = (b - t) * x / (math.pi * (1.0 - x)) * (1.0 - 0.5 * log_sum)
     else:
         dw = 0.0
     r = (b - t) / (w + dw)
