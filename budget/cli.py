@@ -175,6 +175,55 @@ def _cmd_line(args) -> int:
     return EXIT_PASS
 
 
+def _cmd_estimate(args) -> int:
+    """``busbudget estimate DESIGN``: loaded-line numbers and reflection coefficients, to sanity-check a simulation."""
+    import json
+    import math
+    import textwrap
+
+    from .estimates import RESISTIVE_RULE, discontinuities, loaded_lines
+
+    design = load_design(args.design)
+    loaded, recs = loaded_lines(design), discontinuities(design)
+    if args.json:
+        doc = {"schema": "busbudget.estimate/1", "design": design.bus.name, "loaded_lines": loaded.to_json(),
+               "discontinuities": [r.to_json() for r in recs], "reflection_rule": RESISTIVE_RULE}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+        return EXIT_PASS
+    out = [f"Quick estimates for {design.bus.name} (closed forms, not a simulation; confirm with "
+           "`busbudget check`, measurement and the part makers' data)", "",
+           "Loaded lines: Z0' = Z0/sqrt(1 + Cd/C0), delay' = delay*sqrt(1 + Cd/C0)",
+           textwrap.fill(f"({loaded.rule})", 100, initial_indent="  ", subsequent_indent="  ")]
+    head = ("", "length", "C load", "Cd", "Z0", "Z0'", "delay", "delay'", "flight", "flight/rise")
+    units = ("", "mm", "pF", "pF/m", "ohm", "ohm", "ns/m", "ns/m", "ns", "")
+    rows = [head, units]
+    for x in (*loaded.lines, *loaded.segments):
+        ll = x.loaded
+        rows.append((("line " if x in loaded.lines else "  ") + x.name, f"{x.length * 1e3:.1f}",
+                     f"{x.c_assigned * 1e12:.2f}", f"{ll.cd * 1e12:.1f}", f"{ll.z0:.1f}", f"{ll.z0_loaded:.1f}",
+                     f"{ll.delay * 1e9:.3f}", f"{ll.delay_loaded * 1e9:.3f}", f"{x.flight * 1e9:.3f}",
+                     f"{x.section_fraction:.2f}" + ("" if x.short_enough else " *")))
+    out += _table(rows)
+    out.append("  * a section longer than 1/6 of the rise time: the continuum estimate is rough there")
+    out += ["", "Reflection coefficients: gamma = (Z load - Z line)/(Z load + Z line), T = 1 + gamma",
+            textwrap.fill(f"({RESISTIVE_RULE})", 100, initial_indent="  ", subsequent_indent="  ")]
+    rows = [("where", "arriving on", "Z line", "Z load", "gamma", "T", "tau"),
+            ("", "", "ohm", "ohm", "", "", "ps")]
+    for r in recs:
+        rows.append((r.where, r.arriving_on, f"{r.z_line:.1f}", "open" if math.isinf(r.z_load) else f"{r.z_load:.1f}",
+                     f"{r.gamma:+.3f}", f"{r.transmission:.3f}", f"{r.tau * 1e12:.1f}" if r.tau else "-"))
+    out += _table(rows)
+    sys.stdout.write("\n".join(out) + "\n")
+    return EXIT_PASS
+
+
+def _table(rows) -> list[str]:
+    """Rows of strings as aligned text lines: the first column left-aligned, the rest right-aligned."""
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    return ["  " + "  ".join(c.ljust(w) if i < 2 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))).rstrip()
+            for r in rows]
+
+
 def _count(text: str) -> int:
     try:
         n = int(text)
@@ -291,6 +340,15 @@ def build_parser() -> argparse.ArgumentParser:
     ln.add_argument("dims", nargs="*", metavar="KEY=VALUE", help="dimensions, e.g. w='0.3 mm' h='0.2 mm'")
     ln.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.line/1), SI units")
     ln.set_defaults(func=_cmd_line)
+
+    es = sub.add_parser(
+        "estimate", help="quick closed-form numbers: loaded-line impedance and delay, reflection coefficients",
+        description="busbudget estimate DESIGN [--json]: the loaded-line estimate of every trunk segment and line "
+                    "type, and the reflection and transmission coefficient at every junction, device and driver "
+                    "(resistive rule).  Hand numbers to sanity-check a simulation, not a verdict.")
+    es.add_argument("design", help="design file, or example:NAME")
+    es.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.estimate/1), SI units")
+    es.set_defaults(func=_cmd_estimate)
     return p
 
 

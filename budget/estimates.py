@@ -108,6 +108,13 @@ class SegmentLoading:
     def short_enough(self) -> bool:
         return self.section_fraction <= SHORT_SECTION_FRACTION
 
+    def to_json(self) -> dict:
+        ll = self.loaded
+        return {"name": self.name, "line": self.line, "length": self.length, "c_assigned": self.c_assigned,
+                "z0": ll.z0, "delay": ll.delay, "c0": ll.c0, "cd": ll.cd, "factor": ll.factor,
+                "z0_loaded": ll.z0_loaded, "delay_loaded": ll.delay_loaded, "flight": self.flight,
+                "section_fraction": self.section_fraction, "short_enough": self.short_enough}
+
 
 @dataclass(frozen=True)
 class LoadedLinesReport:
@@ -116,6 +123,10 @@ class LoadedLinesReport:
     lines: tuple[SegmentLoading, ...]
     tap_capacitance: dict
     rule: str
+
+    def to_json(self) -> dict:
+        return {"rule": self.rule, "tap_capacitance": dict(self.tap_capacitance),
+                "lines": [x.to_json() for x in self.lines], "segments": [x.to_json() for x in self.segments]}
 
 
 def tap_capacitance(design) -> dict[str, float]:

@@ -474,3 +474,45 @@ def test_batch_design_is_rejected():
         loaded_lines(design)
     with pytest.raises(ArgumentError, match="scalar values"):
         discontinuities(design)
+
+
+# ---------------------------------------------------------------------------
+# `busbudget estimate`
+
+def test_cli_estimate_text(capsys):
+    from budget.cli import main
+
+    code = main(["estimate", "example:backplane"])
+    out, err = capsys.readouterr()
+    assert code == 0 and err == ""
+    assert "Loaded lines" in out and "Reflection coefficients" in out and "not a simulation" in out
+    row = next(ln for ln in out.splitlines() if ln.strip().startswith("line backplane"))
+    expected = loaded_lines(budget.example("backplane")).lines[0]
+    assert float(row.split()[6]) == pytest.approx(expected.loaded.z0_loaded, abs=0.05)   # Z0' column [ohm]
+
+
+def test_cli_estimate_json(capsys):
+    import json
+
+    from budget.cli import main
+
+    code = main(["estimate", "example:fieldbus", "--json"])
+    out, _ = capsys.readouterr()
+    assert code == 0
+    doc = json.loads(out)
+    design = budget.example("fieldbus")
+    assert doc["schema"] == "busbudget.estimate/1" and doc["design"] == design.bus.name
+    recs = discontinuities(design)
+    assert [d["gamma"] for d in doc["discontinuities"]] == pytest.approx([r.gamma for r in recs], rel=1e-12)
+    assert doc["loaded_lines"]["lines"][0]["z0_loaded"] == pytest.approx(
+        loaded_lines(design).lines[0].loaded.z0_loaded, rel=1e-12)
+
+
+def test_cli_estimate_bad_design_exits_2(capsys, tmp_path):
+    from budget.cli import main
+
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[bus]\nname = 'x'\n")
+    code = main(["estimate", str(bad)])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == "" and "bad.toml" in err
