@@ -198,7 +198,8 @@ def loaded_lines(design) -> LoadedLinesReport:
 
 RESISTIVE_RULE = (
     "resistive rule: a wave sees only resistances and other lines; pin capacitances are open (their "
-    "short dip is given separately as tau = R_node * C_node, REFERENCES A10) and package inductances "
+    "short dip is given separately as tau = R * C, R being every line and resistor there in "
+    "parallel: Z0/2 on a through line) and package inductances "
     "short; an RC termination's capacitor is a short (it is sized so that R*C is long against the edge), "
     "so the wave sees its R; a parallel termination's rail and a Thevenin pair's rails are AC ground; "
     "a device pin is its r_in (none = open) behind any series termination; a driver is its output "

@@ -492,6 +492,16 @@ def line(kind: str, **dims) -> CrossSection:
         The geometry is outside the formula's stated range (see each function).
     """
     v = _parse_dims(kind, dims)
+    try:
+        return _evaluate(kind, v)
+    except (OverflowError, ZeroDivisionError, ValueError) as exc:  # math range/domain errors far out of range
+        if isinstance(exc, ArgumentError):
+            raise
+        raise ArgumentError(f"{kind}: the formula cannot be evaluated for {v} ({exc}): the dimensions are "
+                            f"far outside its range") from None
+
+
+def _evaluate(kind: str, v: dict) -> CrossSection:
     er = v["er"]
     coupled = {}
     if kind == "microstrip":
