@@ -126,7 +126,7 @@ def _warn(formula: str, what: str, value: float, lo: float | None, hi: float | N
     if (lo is not None and value < lo) or (hi is not None and value > hi):
         rng = f"{'' if lo is None else f'{lo:g} <= '}{what}{'' if hi is None else f' <= {hi:g}'}"
         warnings.warn(f"{formula}: {what} = {value:.4g} is outside {rng}, the range its accuracy is "
-                      f"stated for; treat the result as a rough estimate", GeometryRangeWarning, stacklevel=4)
+                      f"stated for; treat the result as a rough estimate", GeometryRangeWarning, stacklevel=5)
 
 
 # ---------------------------------------------------------------------------
@@ -390,11 +390,14 @@ def edge_coupled_microstrip(w: float, s: float, h: float, t: float, er: float) -
     """Edge-coupled surface microstrip (z_even, z_odd [ohm], er_eff_even, er_eff_odd [-]) of one line.
 
     Kirschning & Jansen 1984 static equations (:func:`coupled_microstrip_kj`);
-    strip thickness enters as Hammerstad & Jensen's dielectric-corrected width
-    ur (as for the single line) in place of u.  That ignores the side-wall
-    capacitance between thick facing edges, which lowers z_odd a little more:
-    for t comparable to s treat z_odd as an upper estimate.  Warns outside
-    0.1 <= w/h <= 10, 0.1 <= s/h <= 10, er <= 18, and t > w or t > h.
+    strip thickness enters as for the single line (Hammerstad & Jensen 1980):
+    the equations are evaluated at the dielectric-corrected width ur, and both
+    modes' effective permittivities take the single line's thickness factor
+    (Z01(u1)/Z01(ur))^2, so that far apart both modes tend to :func:`microstrip`.
+    That ignores the side-wall capacitance between thick facing edges, which
+    lowers z_odd a little more: for t comparable to s treat z_odd as an upper
+    estimate.  Warns outside 0.1 <= w/h <= 10, 0.1 <= s/h <= 10, er <= 18, and
+    t > w or t > h.
     """
     name = "edge-coupled microstrip (Kirschning & Jansen 1984)"
     u, g = w / h, s / h
@@ -403,8 +406,10 @@ def edge_coupled_microstrip(w: float, s: float, h: float, t: float, er: float) -
     _warn(name, "er", er, None, 18.0)
     _warn(name, "t/w", t / w, None, 1.0)
     _warn(name, "t/h", t / h, None, 1.0)
-    _, ur = _hj_widths(u, t / h, er)
-    return coupled_microstrip_kj(ur, g, er)
+    u1, ur = _hj_widths(u, t / h, er)
+    z_even, z_odd, e_even, e_odd = coupled_microstrip_kj(ur, g, er)
+    thick = (_hj_z01(u1) / _hj_z01(ur)) ** 2
+    return z_even, z_odd, e_even * thick, e_odd * thick
 
 
 # ---------------------------------------------------------------------------
@@ -415,7 +420,7 @@ _FORMULAS = {
     "stripline": "Cohn 1954 exact (t = 0) x Wheeler 1978 thickness factor",
     "coax": "exact TEM: eta0/(2 pi sqrt(er)) ln(D/d)",
     "two_wire": "exact TEM: eta0/(pi sqrt(er)) acosh(s/d)",
-    "edge_coupled_microstrip": "Kirschning & Jansen 1984 (static), Hammerstad & Jensen thickness width",
+    "edge_coupled_microstrip": "Kirschning & Jansen 1984 (static), Hammerstad & Jensen thickness correction",
     "edge_coupled_stripline": "Cohn 1955 exact (t = 0) x Wheeler 1978 / Cohn 1955 thickness factors",
 }
 

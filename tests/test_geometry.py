@@ -290,13 +290,16 @@ def test_coupled_stripline_tends_to_single_line(kind, dims):
     assert cs.z_odd == pytest.approx(single, rel=1e-6)
 
 
-def test_coupled_microstrip_tends_to_single_line():
-    # Kirschning & Jansen 1984 (from memory; ~1 % stated) at the top of their range s/h = 10: within 1 %
-    single = line("microstrip", w=1.0, h=1.0, t=0.0, er=4.4)
-    cs = line("edge_coupled_microstrip", w=1.0, s=10.0, h=1.0, t=0.0, er=4.4)
+@pytest.mark.parametrize("t", [0.0, 0.05, 0.2])
+def test_coupled_microstrip_tends_to_single_line(t):
+    # Kirschning & Jansen 1984 (from memory; ~1 % stated) at the top of their range s/h = 10: within 1 %,
+    # also with strip thickness (the single line's Hammerstad & Jensen correction applied to both modes)
+    single = line("microstrip", w=1.0, h=1.0, t=t, er=4.4)
+    cs = line("edge_coupled_microstrip", w=1.0, s=10.0, h=1.0, t=t, er=4.4)
     assert cs.z_even == pytest.approx(single.z0, rel=0.01)
     assert cs.z_odd == pytest.approx(single.z0, rel=0.01)
     assert cs.er_eff == pytest.approx(single.er_eff, rel=0.01)
+    assert cs.er_eff_even == pytest.approx(single.er_eff, rel=0.01)
 
 
 def test_coupled_microstrip_even_mode_at_small_gap_approaches_double_width():
