@@ -363,7 +363,22 @@ class BounceTable:
 
     def at(self, end: str) -> list:
         """Voltages [V] at ``end`` ("source" or "load") after each arrival, in time order."""
+        if end not in ("source", "load"):
+            raise ArgumentError(f"end must be 'source' or 'load', got {end!r}")
         return [r.voltage for r in self.rows if r.end == end]
+
+    def text(self) -> str:
+        """The table for people: one row per arrival, exact fractions shown as such."""
+        def fmt(x):
+            return str(x) if isinstance(x, Fraction) and x.denominator != 1 and x.denominator < 10 ** 6 \
+                else f"{float(x):+.6g}"
+        lines = [f"gamma_source = {fmt(self.gamma_source)}, gamma_load = {fmt(self.gamma_load)}, "
+                 f"launched wave = {fmt(self.v_launch)} V, final = "
+                 f"{'never settles' if self.v_final is None else fmt(self.v_final) + ' V'}",
+                 f"{'t [TD]':>6}  {'end':<6}  {'incident [V]':>14}  {'reflected [V]':>14}  {'voltage [V]':>14}"]
+        for r in self.rows:
+            lines.append(f"{r.t:>6}  {r.end:<6}  {fmt(r.incident):>14}  {fmt(r.reflected):>14}  {fmt(r.voltage):>14}")
+        return "\n".join(lines) + "\n"
 
 
 def _gamma(z_end, z0):

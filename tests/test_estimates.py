@@ -435,6 +435,16 @@ def test_lattice_blood_example_2_driver_cuts_off():
     assert t.v_final == pytest.approx(0.0, abs=1e-12)                     # driver off: RL pulls to 0 V
 
 
+def test_bounce_table_text():
+    text = bounce_table(25, 50, None, 1, 2, exact=True).text()
+    assert "gamma_source = -1/3, gamma_load = +1" in text and "final = +1 V" in text
+    rows = text.splitlines()[2:]
+    assert rows[1].split() == ["1", "load", "2/3", "2/3", "4/3"]
+    assert rows[2].split() == ["2", "source", "2/3", "-2/9", "10/9"]
+    with pytest.raises(ArgumentError, match="end must be"):
+        bounce_table(25, 50, None).at("middle")
+
+
 @given(rs=st.integers(0, 200), z0=st.integers(10, 150), rl=st.integers(1, 10_000))
 def test_lattice_converges_to_the_dc_divider(rs, z0, rl):
     # DC convergence: the load voltage tends to Vs RL/(Rs + RL), and after k + 1 arrivals it is
@@ -516,3 +526,34 @@ def test_cli_estimate_bad_design_exits_2(capsys, tmp_path):
     code = main(["estimate", str(bad)])
     out, err = capsys.readouterr()
     assert code == 2 and out == "" and "bad.toml" in err
+
+
+def test_junction_coefficient_against_the_engine():
+    # A matched 50 ohm driver, 10 cm of trunk (0.5 ns), a tee with a 75 ohm, 10 cm open stub and 10 cm more
+    # trunk to a matched end.  The wave reflected at the tee comes back to the driver at 1 ns and moves its pin
+    # from V1 = 0.5 V to V1 (1 + gamma) (the matched source absorbs it); the echo of the stub's open end
+    # arrives only 1 ns later.  gamma from discontinuities(): -0.25 (REFERENCES A9).  Tolerance 0.5 % of the step
+    # (the engine's plateau accuracy, tests/test_closed_forms.py).
+    text = _TEE_NO_STUB.replace('rise = "1 ns"\nfall = "1 ns"', 'rise = "10 ps"\nfall = "10 ps"') \
+        .replace('[bus]\nname = "through line (test)"', '[bus]\nname = "tee (test)"\ndt = "1 ps"\nt_stop = "3 ns"') \
+        .replace('c_pin = "2 pF"', 'c_pin = "0 pF"') + """
+[lines.spur]
+z0 = "75 ohm"
+delay = "5 ns/m"
+[[tap]]
+name = "S"
+node = "m"
+part = "rx"
+stub = { line = "spur", length = "10 cm" }
+"""
+    design = budget.loads(text, source="tee_engine.toml")
+    rec = _find(discontinuities(design), "node m", "segment 0")
+    assert rec.gamma == pytest.approx(-0.25, rel=1e-12)          # 50 || 75 = 30 ohm (R1's pin is open)
+    w = budget.simulate(design, "D", "rise")
+    v = w["D"]
+    first = v[(w.t > 0.5e-9) & (w.t < 0.9e-9)].mean()
+    echo = v[(w.t > 1.1e-9) & (w.t < 1.9e-9)].mean()
+    assert first == pytest.approx(0.5, abs=0.0025)
+    err = echo - 0.5 * (1 + rec.gamma)
+    accuracy_record(f"junction gamma vs engine (tee, 50 | 75 ohm): {err / 0.5:+.3%} of the step (tolerance 0.5 %)")
+    assert abs(err) < 0.0025
