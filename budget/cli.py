@@ -217,6 +217,48 @@ def _cmd_estimate(args) -> int:
     return EXIT_PASS
 
 
+def _cmd_bounce(args) -> int:
+    """``busbudget bounce RS Z0 RL``: lattice (bounce) table of a resistive source, one line and a resistive load."""
+    import json
+    import math
+
+    from .errors import DesignError
+    from .estimates import bounce_table
+    from .units import parse_quantity
+
+    def ohms(text, name, *, open_ok):
+        if open_ok and text.strip().lower() in ("open", "inf"):
+            return math.inf
+        try:
+            return float(text)  # a bare number is in ohms
+        except ValueError:
+            pass
+        try:
+            return parse_quantity(text, "resistance", source="command line", key=name)
+        except DesignError as exc:
+            raise InputError(f"bounce: {name}: {exc.reason}") from None
+
+    try:
+        step = float(args.step)  # a bare number is in volts
+    except ValueError:
+        step = None
+    try:
+        step = parse_quantity(args.step, "voltage", source="command line", key="--step") if step is None else step
+    except DesignError as exc:
+        raise InputError(f"bounce: --step: {exc.reason}") from None
+    table = bounce_table(ohms(args.rs, "RS", open_ok=True), ohms(args.z0, "Z0", open_ok=False),
+                         ohms(args.rl, "RL", open_ok=True), step, args.n)
+    if args.json:
+        rows = [{"t": r.t, "end": r.end, "incident": r.incident, "reflected": r.reflected, "voltage": r.voltage}
+                for r in table.rows]
+        doc = {"schema": "busbudget.bounce/1", "gamma_source": table.gamma_source, "gamma_load": table.gamma_load,
+               "v_launch": table.v_launch, "v_final": table.v_final, "time_unit": "one-way delay TD", "rows": rows}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(table.text())
+    return EXIT_PASS
+
+
 def _table(rows) -> list[str]:
     """Rows of strings as aligned text lines: the first column left-aligned, the rest right-aligned."""
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
@@ -349,6 +391,19 @@ def build_parser() -> argparse.ArgumentParser:
     es.add_argument("design", help="design file, or example:NAME")
     es.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.estimate/1), SI units")
     es.set_defaults(func=_cmd_estimate)
+
+    bo = sub.add_parser(
+        "bounce", help="lattice (bounce) table: resistive source, one lossless line, resistive load",
+        description="busbudget bounce RS Z0 RL [--step V] [-n N] [--json]: the voltages at both ends of one "
+                    "lossless line after each reflection, in units of its one-way delay TD.  RS and RL may be "
+                    "'open'.  Resistances with units ('25 ohm') or in ohms.")
+    bo.add_argument("rs", help="source resistance (or 'open')")
+    bo.add_argument("z0", help="line impedance")
+    bo.add_argument("rl", help="load resistance (or 'open')")
+    bo.add_argument("--step", default="1 V", help="source EMF step (default 1 V)")
+    bo.add_argument("-n", type=_positive, default=6, help="arrivals at the load (default 6)")
+    bo.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.bounce/1)")
+    bo.set_defaults(func=_cmd_bounce)
     return p
 
 

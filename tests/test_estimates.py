@@ -557,3 +557,33 @@ stub = { line = "spur", length = "10 cm" }
     err = echo - 0.5 * (1 + rec.gamma)
     accuracy_record(f"junction gamma vs engine (tee, 50 | 75 ohm): {err / 0.5:+.3%} of the step (tolerance 0.5 %)")
     assert abs(err) < 0.0025
+
+
+def test_cli_bounce(capsys):
+    import json
+
+    from budget.cli import main
+
+    assert main(["bounce", "25 ohm", "50", "open", "-n", "2", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    exact = bounce_table(25, 50, None, 1, 2, exact=True)          # REFERENCES A4
+    assert doc["schema"] == "busbudget.bounce/1"
+    assert [r["voltage"] for r in doc["rows"]] == pytest.approx([float(r.voltage) for r in exact.rows], rel=1e-12)
+    assert main(["bounce", "0", "30", "90", "--step", "120 V", "-n", "5"]) == 0     # REFERENCES A6
+    out = capsys.readouterr().out
+    loads = [float(ln.split()[-1]) for ln in out.splitlines()[2:] if ln.split()[1] == "load"]
+    assert loads == pytest.approx([180, 90, 135, 112.5, 123.75], rel=1e-12)
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["bounce", "10", "open", "50"], "bounce: Z0: cannot read 'open'"),
+    (["bounce", "10", "50", "-5"], "rl must be a non-negative finite resistance"),
+    (["bounce", "10 V", "50", "50"], "bounce: RS: '10 V' is not a resistance"),
+    (["bounce", "10", "50", "50", "--step", "3 ohm"], "bounce: --step: '3 ohm' is not a voltage"),
+], ids=["open-z0", "negative-load", "wrong-unit", "step-unit"])
+def test_cli_bounce_bad_input_exits_2(capsys, argv, message):
+    from budget.cli import main
+
+    assert main(argv) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and message in err
