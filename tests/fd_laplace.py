@@ -30,14 +30,13 @@ def _capacitances(eps_cells, strips, ny, nx):
         strip_of[row, c0:c1 + 1] = k
         fixed[row, c0:c1 + 1] = True
     e = np.asarray(eps_cells)
-    # coefficients from each interior node to its four neighbours
-    rows, cols, vals = [], [], []
+    # coefficients from each free node to its four neighbours: the permittivity of the cells each face
+    # crosses (the cell row above, below, or the mean of both for the side faces)
     j, i = np.nonzero(~fixed)
     up, down = e[j], e[j - 1]
     side = 0.5 * (e[j] + e[j - 1])
     centre = idx[j, i]
     diag = up + down + 2 * side
-    rows.append(centre), cols.append(centre), vals.append(diag)
     neighbours = [((j + 1, i), up), ((j - 1, i), down), ((j, i + 1), side), ((j, i - 1), side)]
     free_pos = -np.ones(n, dtype=int)
     free_pos[centre] = np.arange(centre.size)
@@ -46,7 +45,9 @@ def _capacitances(eps_cells, strips, ny, nx):
     for (jj, ii), coef in neighbours:
         nb = idx[jj, ii]
         is_free = free_pos[nb] >= 0
-        a_rows.append(np.nonzero(is_free)[0]), a_cols.append(free_pos[nb[is_free]]), a_vals.append(-coef[is_free])
+        a_rows.append(np.nonzero(is_free)[0])
+        a_cols.append(free_pos[nb[is_free]])
+        a_vals.append(-coef[is_free])
         s_of = strip_of[jj, ii]
         for k in range(len(strips)):
             m = s_of == k
