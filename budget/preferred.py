@@ -31,12 +31,18 @@ def _key(series: str):
     return eseries.ESeries[series.upper()]
 
 
+# the eseries package works between 1e-200 and the float limit; keep clear of both ends
+MIN_VALUE, MAX_VALUE = 1e-150, 1e150
+
+
 def _positive(value, name: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise ArgumentError(f"{name} must be a number, got {type(value).__name__}")
     v = float(value)
     if not (math.isfinite(v) and v > 0.0):
         raise ArgumentError(f"{name} must be a positive finite number, got {value!r}")
+    if not MIN_VALUE <= v <= MAX_VALUE:
+        raise ArgumentError(f"{name} = {v:g} is outside the supported range {MIN_VALUE:g} .. {MAX_VALUE:g}")
     return v
 
 

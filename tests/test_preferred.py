@@ -96,7 +96,7 @@ def test_values_between():
     assert len(preferred.values_between(10, 99.9, "E96")) == 96
 
 
-@given(value=st.floats(min_value=1e-13, max_value=1e9), series=st.sampled_from(preferred.SERIES))
+@given(value=st.floats(min_value=1e-140, max_value=1e140), series=st.sampled_from(preferred.SERIES))
 def test_nearest_is_a_member_within_half_a_step(value, series):
     got = preferred.nearest(value, series)
     lo, hi = preferred.neighbours(value, series)
@@ -112,6 +112,8 @@ INVALID = [
     ("negative", lambda: preferred.nearest(-5, "E24"), "value must be a positive finite number"),
     ("nan", lambda: preferred.nearest(float("nan"), "E24"), "positive finite"),
     ("string", lambda: preferred.nearest("50 ohm", "E24"), "value must be a number"),
+    ("too-small", lambda: preferred.nearest(1e-250, "E24"), "outside the supported range"),
+    ("too-large", lambda: preferred.values_between(1, 1e200, "E6"), "hi = 1e+200 is outside the supported range"),
     ("reversed-range", lambda: preferred.values_between(100, 10, "E24"), "lo (100) must not exceed hi (10)"),
     ("series-not-str", lambda: preferred.values_between(1, 10, 24), "unknown preferred-number series 24"),
 ]
