@@ -134,7 +134,9 @@ def tap_capacitance(design) -> dict[str, float]:
 
     The stub counts as its total line capacitance length*delay/z0 [F] (REFERENCES B1;
     TI SCEA019 Q8 adds stub trace capacitance the same way); package inductance
-    and series resistors are ignored (short, electrically small loads).
+    and series resistors are ignored.  Lumping a stub this way holds only while
+    the stub is short against the edge (REFERENCES C5); a longer stub rings, and
+    only the simulation shows that.
     """
     out = {}
     for tap in design.taps:
