@@ -203,6 +203,140 @@ def _quantity_type(dimension: str, check=None, what=""):
         return value
     return parse
 
+def _cmd_line(args) -> int:
+    """``busbudget line KIND KEY=VALUE ...``: Z0 and delay of a cross-section from its geometry."""
+    import json
+    import warnings
+
+    from .geometry import KINDS, line
+
+    dims = {}
+    for item in args.dims:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            raise InputError(f"line: expected KEY=VALUE, got {item!r}; {args.kind} takes: "
+                             f"{', '.join(KINDS.get(args.kind, ())) or 'see --help'}")
+        value = value.strip()
+        try:  # a bare number is SI (er, or metres); anything else goes to the unit parser
+            dims[key.strip()] = float(value)
+        except ValueError:
+            dims[key.strip()] = value
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        cs = line(args.kind, **dims)
+    notes = [str(w.message) for w in caught]
+    if args.json:
+        sys.stdout.write(json.dumps({"schema": "busbudget.line/1", **cs.to_json(), "warnings": notes},
+                                    indent=2, allow_nan=False) + "\n")
+    else:
+        rows = [("kind", cs.kind, "")]
+        rows += [(k, f"{v:.6g}", "" if k == "er" else "m") for k, v in cs.dims.items()]
+        rows += [("z0", f"{cs.z0:.4f}", "ohm" + (" (odd mode)" if cs.z_odd is not None else "")),
+                 ("delay", f"{cs.delay * 1e9:.5f}", "ns/m"), ("er_eff", f"{cs.er_eff:.5f}", "")]
+        if cs.z_odd is not None:
+            rows += [("z_odd", f"{cs.z_odd:.4f}", "ohm"), ("z_even", f"{cs.z_even:.4f}", "ohm"),
+                     ("z_diff", f"{cs.z_diff:.4f}", "ohm"), ("er_eff_even", f"{cs.er_eff_even:.5f}", ""),
+                     ("delay_even", f"{cs.delay_even * 1e9:.5f}", "ns/m")]
+        width = max(len(r[0]) for r in rows)
+        for name, value, unit in rows:
+            print(f"{name:<{width}}  {value:>12}  {unit}".rstrip())
+        print(f"formula: {cs.formula}; quasi-static, lossless; an estimate to confirm with the "
+              "board maker's impedance data or a TDR measurement")
+    for note in notes:
+        print(f"warning: {note}", file=sys.stderr)
+    return EXIT_PASS
+
+
+def _cmd_estimate(args) -> int:
+    """``busbudget estimate DESIGN``: loaded-line numbers and reflection coefficients, to sanity-check a simulation."""
+    import json
+    import math
+    import textwrap
+
+    from .estimates import RESISTIVE_RULE, discontinuities, loaded_lines
+
+    design = load_design(args.design)
+    loaded, recs = loaded_lines(design), discontinuities(design)
+    if args.json:
+        doc = {"schema": "busbudget.estimate/1", "design": design.bus.name, "loaded_lines": loaded.to_json(),
+               "discontinuities": [r.to_json() for r in recs], "reflection_rule": RESISTIVE_RULE}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+        return EXIT_PASS
+    out = [f"Quick estimates for {design.bus.name} (closed forms, not a simulation; confirm with "
+           "`busbudget check`, measurement and the part makers' data)", "",
+           "Loaded lines: Z0' = Z0/sqrt(1 + Cd/C0), delay' = delay*sqrt(1 + Cd/C0)",
+           textwrap.fill(f"({loaded.rule})", 100, initial_indent="  ", subsequent_indent="  ")]
+    head = ("", "length", "C load", "Cd", "Z0", "Z0'", "delay", "delay'", "flight", "flight/rise")
+    units = ("", "mm", "pF", "pF/m", "ohm", "ohm", "ns/m", "ns/m", "ns", "")
+    rows = [head, units]
+    for x in (*loaded.lines, *loaded.segments):
+        ll = x.loaded
+        rows.append((("line " if x in loaded.lines else "  ") + x.name, f"{x.length * 1e3:.1f}",
+                     f"{x.c_assigned * 1e12:.2f}", f"{ll.cd * 1e12:.1f}", f"{ll.z0:.1f}", f"{ll.z0_loaded:.1f}",
+                     f"{ll.delay * 1e9:.3f}", f"{ll.delay_loaded * 1e9:.3f}", f"{x.flight * 1e9:.3f}",
+                     f"{x.section_fraction:.2f}" + ("" if x.short_enough else " *")))
+    out += _table(rows)
+    out.append("  * a section longer than 1/6 of the rise time: the continuum estimate is rough there")
+    out += ["", "Reflection coefficients: gamma = (Z load - Z line)/(Z load + Z line), T = 1 + gamma",
+            textwrap.fill(f"({RESISTIVE_RULE})", 100, initial_indent="  ", subsequent_indent="  ")]
+    rows = [("where", "arriving on", "Z line", "Z load", "gamma", "T", "tau"),
+            ("", "", "ohm", "ohm", "", "", "ps")]
+    for r in recs:
+        rows.append((r.where, r.arriving_on, f"{r.z_line:.1f}", "open" if math.isinf(r.z_load) else f"{r.z_load:.1f}",
+                     f"{r.gamma:+.3f}", f"{r.transmission:.3f}", f"{r.tau * 1e12:.1f}" if r.tau else "-"))
+    out += _table(rows)
+    sys.stdout.write("\n".join(out) + "\n")
+    return EXIT_PASS
+
+
+def _cmd_bounce(args) -> int:
+    """``busbudget bounce RS Z0 RL``: lattice (bounce) table of a resistive source, one line and a resistive load."""
+    import json
+    import math
+
+    from .errors import DesignError
+    from .estimates import bounce_table
+    from .units import parse_quantity
+
+    def ohms(text, name, *, open_ok):
+        if open_ok and text.strip().lower() in ("open", "inf"):
+            return math.inf
+        try:
+            return float(text)  # a bare number is in ohms
+        except ValueError:
+            pass
+        try:
+            return parse_quantity(text, "resistance", source="command line", key=name)
+        except DesignError as exc:
+            raise InputError(f"bounce: {name}: {exc.reason}") from None
+
+    try:
+        step = float(args.step)  # a bare number is in volts
+    except ValueError:
+        step = None
+    try:
+        step = parse_quantity(args.step, "voltage", source="command line", key="--step") if step is None else step
+    except DesignError as exc:
+        raise InputError(f"bounce: --step: {exc.reason}") from None
+    table = bounce_table(ohms(args.rs, "RS", open_ok=True), ohms(args.z0, "Z0", open_ok=False),
+                         ohms(args.rl, "RL", open_ok=True), step, args.n)
+    if args.json:
+        rows = [{"t": r.t, "end": r.end, "incident": r.incident, "reflected": r.reflected, "voltage": r.voltage}
+                for r in table.rows]
+        doc = {"schema": "busbudget.bounce/1", "gamma_source": table.gamma_source, "gamma_load": table.gamma_load,
+               "v_launch": table.v_launch, "v_final": table.v_final, "time_unit": "one-way delay TD", "rows": rows}
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(table.text())
+    return EXIT_PASS
+
+
+def _table(rows) -> list[str]:
+    """Rows of strings as aligned text lines: the first column left-aligned, the rest right-aligned."""
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    return ["  " + "  ".join(c.ljust(w) if i < 2 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))).rstrip()
+            for r in rows]
+
 
 def _count(text: str) -> int:
     try:
@@ -351,6 +485,40 @@ def build_parser() -> argparse.ArgumentParser:
                     help="round-trip resolution, at least the edge's 0-100 %% duration (default: that duration)")
     td.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.tdr/1)")
     td.set_defaults(func=cmd_tdr)
+
+    ln = sub.add_parser(
+        "line", help="Z0 and delay per length of a cross-section from its geometry",
+        description="busbudget line KIND KEY=VALUE ... : quasi-static Z0 [ohm], delay [s/m] and effective "
+                    "permittivity of a line from its geometry.  Kinds and keys: microstrip w h t er; "
+                    "stripline w b t er (b ground-to-ground); coax d D er; two_wire d s er (s centre spacing); "
+                    "edge_coupled_microstrip w s h t er; edge_coupled_stripline w s b t er (s gap).  Lengths "
+                    "with units ('0.3 mm', '5 mil') or in metres; er plain.")
+    ln.add_argument("kind", help="cross-section kind")
+    ln.add_argument("dims", nargs="*", metavar="KEY=VALUE", help="dimensions, e.g. w='0.3 mm' h='0.2 mm'")
+    ln.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.line/1), SI units")
+    ln.set_defaults(func=_cmd_line)
+
+    es = sub.add_parser(
+        "estimate", help="quick closed-form numbers: loaded-line impedance and delay, reflection coefficients",
+        description="busbudget estimate DESIGN [--json]: the loaded-line estimate of every trunk segment and line "
+                    "type, and the reflection and transmission coefficient at every junction, device and driver "
+                    "(resistive rule).  Hand numbers to sanity-check a simulation, not a verdict.")
+    es.add_argument("design", help="design file, or example:NAME")
+    es.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.estimate/1), SI units")
+    es.set_defaults(func=_cmd_estimate)
+
+    bo = sub.add_parser(
+        "bounce", help="lattice (bounce) table: resistive source, one lossless line, resistive load",
+        description="busbudget bounce RS Z0 RL [--step V] [-n N] [--json]: the voltages at both ends of one "
+                    "lossless line after each reflection, in units of its one-way delay TD.  RS and RL may be "
+                    "'open'.  Resistances with units ('25 ohm') or in ohms.")
+    bo.add_argument("rs", help="source resistance (or 'open')")
+    bo.add_argument("z0", help="line impedance")
+    bo.add_argument("rl", help="load resistance (or 'open')")
+    bo.add_argument("--step", default="1 V", help="source EMF step (default 1 V)")
+    bo.add_argument("-n", type=_positive, default=6, help="arrivals at the load (default 6)")
+    bo.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.bounce/1)")
+    bo.set_defaults(func=_cmd_bounce)
     return p
 
 

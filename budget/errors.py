@@ -75,3 +75,11 @@ class CaptureError(BusBudgetError, ValueError):
         if column is not None:
             where += f"{',' if line is not None else ':'} column {column!r}"
         super().__init__(f"{where}: {message}")
+
+class GeometryRangeWarning(UserWarning):
+    """A cross-section is outside the range its closed-form formula was fitted or proven for.
+
+    Issued by :func:`budget.geometry.line`; the result is still computed, but its
+    stated accuracy no longer applies.  The message names the formula, the
+    dimension ratio and the range.
+    """
