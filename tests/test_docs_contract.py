@@ -250,3 +250,66 @@ def test_undocumented_top_level_table_is_refused():
     doc["not_a_documented_table"] = {}
     with pytest.raises(DesignError, match="not_a_documented_table"):
         loads(to_toml(doc), source="undocumented.toml")
+
+
+# ---------------------------------------------------------------------------
+# metric and JSON contract
+
+METRICS_DOC = (DOCS / "metrics.md").read_text(encoding="utf-8")
+JSON_ROWS = {unquote(r["key"]): r for r in marked_tables(METRICS_DOC, "json")["busbudget.check/1"]}
+# objects whose keys are names from the design, not schema keys: path -> placeholder
+DATA_MAPS = {"tolerances": "PATH", "budget.allocations": "NAME", "variants": "LABEL",
+             "variants.LABEL.values": "PATH", "variants.LABEL.extremes": "PATH", "extensions": "KEY"}
+
+
+def json_leaves(x, prefix="", out=None) -> dict:
+    """Schema path -> list of values for every leaf of a JSON document (lists of objects as ``[]``)."""
+    out = {} if out is None else out
+    if isinstance(x, dict):
+        for k, v in x.items():
+            name = DATA_MAPS.get(prefix, k)
+            json_leaves(v, f"{prefix}.{name}" if prefix else name, out)
+    elif isinstance(x, list) and x and all(isinstance(v, dict) for v in x):
+        for v in x:
+            json_leaves(v, prefix + "[]", out)
+    else:
+        out.setdefault(prefix, []).append(x)
+    return out
+
+
+@pytest.fixture(scope="module")
+def check_documents():
+    """JSON documents of `check` on bundled and test designs, every analysis exercised."""
+    from budget.check import check
+
+    designs = ROOT / "tests" / "designs"
+    reports = [
+        check(budget.example("short-bus"), corners=True, monte_carlo=8, seed=1, search=True,
+              search_generations=1),
+        check(budget.example("fieldbus")),
+        check(budget.load(designs / "failing_overshoot.toml")),
+    ]
+    return [json.loads(json.dumps(r.to_json(), allow_nan=False)) for r in reports]
+
+
+def test_every_emitted_json_key_is_documented(check_documents):
+    leaves = {}
+    for doc in check_documents:
+        for path, values in json_leaves(doc).items():
+            leaves.setdefault(path, []).extend(values)
+    undocumented = sorted(set(leaves) - set(JSON_ROWS))
+    assert undocumented == [], "keys of the check JSON missing from docs/metrics.md"
+    never_emitted = sorted(set(JSON_ROWS) - set(leaves))
+    assert never_emitted == [], "keys documented in docs/metrics.md that check no longer emits"
+    for path, row in JSON_ROWS.items():
+        if row["null"] == "never":
+            assert None not in leaves[path], f"{path} is documented as never null"
+
+
+def test_documented_violation_names_are_the_kernels():
+    """The violation table of docs/metrics.md names the kernel's violations, in the kernel's order."""
+    from budget.kernels.metrics import VIOLATION_NAMES
+
+    documented = re.findall(r"^\| `([^`]+)` \| (?:the margin|t_valid|v_peak|v_trough|monotonic|settle_time)",
+                            METRICS_DOC, re.M)
+    assert documented == [name for _, name in VIOLATION_NAMES]
