@@ -313,3 +313,54 @@ def test_documented_violation_names_are_the_kernels():
     documented = re.findall(r"^\| `([^`]+)` \| (?:the margin|t_valid|v_peak|v_trough|monotonic|settle_time)",
                             METRICS_DOC, re.M)
     assert documented == [name for _, name in VIOLATION_NAMES]
+
+
+# ---------------------------------------------------------------------------
+# command-line contract
+
+CLI_DOC = (DOCS / "cli.md").read_text(encoding="utf-8")
+
+
+def parser_options() -> dict[str, set[str]]:
+    """Command -> its option strings and positional names, from the real argparse parser."""
+    import argparse
+
+    from budget.cli import build_parser
+
+    def names(p):
+        out = set()
+        for a in p._actions:
+            if isinstance(a, argparse._SubParsersAction):
+                continue
+            out |= set(a.option_strings) if a.option_strings else {a.dest}
+        return out
+
+    parser = build_parser()
+    out = {TOP: names(parser)}
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for name, sub in action.choices.items():
+                out[name] = names(sub)
+    return out
+
+
+def test_cli_reference_lists_every_command_and_option():
+    documented = {label: {o for r in rows for o in re.findall(r"`([^`]+)`", r["option"])}
+                  for label, rows in marked_tables(CLI_DOC, "options").items()}
+    actual = parser_options()
+    assert set(documented) == set(actual), "commands in docs/cli.md differ from the parser's"
+    for command, options in actual.items():
+        assert options - documented[command] == set(), f"{command}: options missing from docs/cli.md"
+        assert documented[command] - options == set(), f"{command}: docs/cli.md lists options the parser lacks"
+        if command != TOP:
+            assert f"## `busbudget {command}" in CLI_DOC
+
+
+def test_cli_reference_documents_the_exit_codes():
+    from budget import cli
+
+    rows = {r["code"]: r["meaning"] for r in
+            [dict(zip(["code", "meaning"], _cells(line))) for line in CLI_DOC.splitlines()
+             if re.match(r"\| \d+ \|", line)]}
+    for code in (cli.EXIT_PASS, cli.EXIT_FAIL, cli.EXIT_INPUT, 3, 130):
+        assert str(code) in rows, f"exit code {code} not documented"
