@@ -522,7 +522,7 @@ def _build(st: Structure, params: Mapping[str, Any]) -> Design:
         else:
             _check(np.asarray(P[f"{t}.er_eff"]) >= 1, st, f"{t}.er_eff",
                    "must be at least 1 (a line is never faster than light in vacuum)", P[f"{t}.er_eff"])
-            delay = np.sqrt(P[f"{t}.er_eff"]) / C0  # REFERENCES B2: t_pd = sqrt(eps_eff)/c
+            delay = np.sqrt(P[f"{t}.er_eff"]) / C0  # docs/references.md B2: t_pd = sqrt(eps_eff)/c
         nonneg(f"{t}.r_dc")
         lines[name] = LineType(name=name, z0=P[f"{t}.z0"], delay=delay, r_dc=get(f"{t}.r_dc", 0.0))
 

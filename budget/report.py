@@ -1,6 +1,6 @@
 """Reports of a budget check: a text table for people, a versioned JSON document for scripts.
 
-JSON (schema ``busbudget.check/1``, DESIGN.md section 5 is the contract; keys
+JSON (schema ``busbudget.check/1``, docs/metrics.md is the contract; keys
 are only ever added): SI units (volts, seconds), ``null`` for a time that
 never occurs, never NaN.  Extensions beyond the contract are listed in
 :data:`JSON_EXTENSIONS`.

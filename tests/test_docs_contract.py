@@ -364,3 +364,49 @@ def test_cli_reference_documents_the_exit_codes():
              if re.match(r"\| \d+ \|", line)]}
     for code in (cli.EXIT_PASS, cli.EXIT_FAIL, cli.EXIT_INPUT, 3, 130):
         assert str(code) in rows, f"exit code {code} not documented"
+
+
+# ---------------------------------------------------------------------------
+# citations of the reference list
+
+REFERENCES_DOC = (DOCS / "references.md").read_text(encoding="utf-8")
+CITATION = re.compile(r"docs/references\.md (?:(section) )?([A-G]\d*)\b")
+
+
+def repository_text_files():
+    """Source, test, benchmark, C and documentation files of the repository."""
+    for folder in ("budget", "tests", "benchmarks", "cexport", "docs"):
+        for path in sorted((ROOT / folder).rglob("*")):
+            if path.suffix in (".py", ".toml", ".md", ".c", ".h", ".txt") and path.is_file():
+                yield path
+    yield from sorted(ROOT.glob("*.md"))
+
+
+def test_reference_items_are_unique_and_in_order():
+    items = re.findall(r"^### ([A-G]\d+)\. ", REFERENCES_DOC, re.M)
+    assert len(items) == len(set(items))
+    expected = {"A": 11, "B": 9, "C": 5, "D": 5, "E": 9, "F": 3, "G": 3}
+    assert items == [f"{g}{i}" for g, n in expected.items() for i in range(1, n + 1)]
+
+
+def test_every_cited_reference_item_exists():
+    items = set(re.findall(r"^### ([A-G]\d+)\. ", REFERENCES_DOC, re.M))
+    sections = set(re.findall(r"^## ([A-G])\. ", REFERENCES_DOC, re.M))
+    cited = 0
+    for path in repository_text_files():
+        text = path.read_text(encoding="utf-8", errors="replace")
+        for m in CITATION.finditer(text):
+            cited += 1
+            known = sections if m.group(1) or len(m.group(2)) == 1 else items
+            where = f"{path.relative_to(ROOT)}:{text.count(chr(10), 0, m.start()) + 1}"
+            assert m.group(2) in known, f"{where} cites {m.group(0)!r}, not in docs/references.md"
+    assert cited > 20          # the suite really cites the list (guards against a broken pattern)
+
+
+def test_no_citation_of_documents_outside_the_repository():
+    stale = re.compile(r"REFERENCES [A-G]\d|REFERENCES\.md|DESIGN\.md")
+    for path in repository_text_files():
+        if path.name == Path(__file__).name:
+            continue
+        text = path.read_text(encoding="utf-8", errors="replace")
+        assert not stale.search(text), f"{path.relative_to(ROOT)} cites a document outside the repository"
