@@ -29,7 +29,7 @@ before one without, then the lowest headroom, then the first met.
 References
 ----------
 - E. B. Wilson, "Probable inference, the law of succession, and statistical
-  inference", JASA 22(158), 1927, 209-212 (REFERENCES G1).
+  inference", JASA 22(158), 1927, 209-212 (docs/references.md G1).
 - R. Storn, K. Price, "Differential evolution - a simple and efficient
   heuristic for global optimization over continuous spaces", J. Global
   Optimization 11, 1997, 341-359.
@@ -61,7 +61,7 @@ def wilson_interval(k: int, n: int, confidence: float = 0.95) -> tuple[float, fl
 
     centre = (p + z^2/(2n)) / (1 + z^2/n), half-width =
     z sqrt(p(1-p)/n + z^2/(4n^2)) / (1 + z^2/n), with p = k/n and
-    z = Phi^-1(1 - (1 - confidence)/2) (Wilson 1927; REFERENCES G1).
+    z = Phi^-1(1 - (1 - confidence)/2) (Wilson 1927; docs/references.md G1).
     Unlike the normal approximation it stays inside [0, 1] and is not
     degenerate at k = 0 (upper limit z^2/(n + z^2)).
     """

@@ -1,6 +1,6 @@
 """Captured waveforms: bench and oscilloscope CSV exports, or numpy arrays, as time [s] and volts [V].
 
-File rules (DESIGN.md section 8):
+File rules (docs/cli.md):
 
 * Optional free-text lines (instrument settings, comments) before the header.  The
   header is the first line of two or more text cells that is followed by a row of

@@ -522,7 +522,7 @@ def _build(st: Structure, params: Mapping[str, Any]) -> Design:
         else:
             _check(np.asarray(P[f"{t}.er_eff"]) >= 1, st, f"{t}.er_eff",
                    "must be at least 1 (a line is never faster than light in vacuum)", P[f"{t}.er_eff"])
-            delay = np.sqrt(P[f"{t}.er_eff"]) / C0  # REFERENCES B2: t_pd = sqrt(eps_eff)/c
+            delay = np.sqrt(P[f"{t}.er_eff"]) / C0  # docs/references.md B2: t_pd = sqrt(eps_eff)/c
         nonneg(f"{t}.r_dc")
         lines[name] = LineType(name=name, z0=P[f"{t}.z0"], delay=delay, r_dc=get(f"{t}.r_dc", 0.0))
 
@@ -551,3 +551,37 @@ def _build(st: Structure, params: Mapping[str, Any]) -> Design:
         tolerances=st.tolerances, budget=st.budget, params=frozen(P), delay_keys=st.delay_keys,
         structure=st,
     )
+
+
+# ---------------------------------------------------------------------------
+# the key schema, for the design-file reference (docs/design-file.md) and its test
+
+def accepted_keys() -> dict[str, set[str]]:
+    """Every key the loader accepts, by table label.
+
+    Labels: "" (top-level table names), "bus", "edge", "parts.driver",
+    "parts.receiver", "parts.transceiver" (by role; each with "role" and, for
+    the roles that can drive, "ref_load"), "parts.ref_load", "lines",
+    "segment", "tap", "tap.stub", "termination.<type>" (each with "type") and
+    "budget".  The named allocations of ``[budget.extra]`` are free names and
+    the keys of ``[tolerances]`` are parameter paths, so neither is listed.
+    """
+    part_common = {"role"} | set(PART_COMMON)
+    out = {
+        "": set(TOP_LEVEL),
+        "bus": set(BUS_KEYS),
+        "edge": set(EDGE_KEYS),
+        # a receiver-only part is refused a ref_load (it never drives, so it has no timing reference)
+        "parts.driver": part_common | set(DRIVE_KEYS) | {"ref_load"},
+        "parts.receiver": part_common | set(RECEIVE_KEYS),
+        "parts.transceiver": part_common | set(DRIVE_KEYS) | set(RECEIVE_KEYS) | {"ref_load"},
+        "parts.ref_load": set(REF_LOAD_KEYS),
+        "lines": set(LINE_KEYS),
+        "segment": {"from", "to", "line", "length"},
+        "tap": {"name", "node", "part", "stub"},
+        "tap.stub": {"line", "length"},
+        "budget": set(BUDGET_KEYS),
+    }
+    for typ, keys in TERM_KEYS.items():
+        out[f"termination.{typ}"] = set(keys) | {"type"}
+    return out

@@ -5,14 +5,14 @@ for the transient engine:
 
 - :func:`loaded_line` / :func:`loaded_lines`: effective impedance and delay of a
   line loaded by evenly spaced capacitances, Z0' = Z0/sqrt(1 + Cd/C0),
-  t_pd' = t_pd sqrt(1 + Cd/C0) (REFERENCES C1: TI SCBA015A; Johnson & Graham
+  t_pd' = t_pd sqrt(1 + Cd/C0) (docs/references.md C1: TI SCBA015A; Johnson & Graham
   1993 section 4.4.3.1).  Holds while the load spacing is electrically short
-  against the edge (REFERENCES C5).
+  against the edge (docs/references.md C5).
 - :func:`discontinuities`: the reflection and transmission coefficient a wave
-  meets at every junction, line end and driver of a design (REFERENCES A1, A2,
+  meets at every junction, line end and driver of a design (docs/references.md A1, A2,
   A8, A9), under the *resistive rule* stated there.
 - :func:`bounce_table`: the lattice (bounce) diagram of a resistive source, one
-  lossless line and a resistive load (REFERENCES A4-A7), optionally in exact
+  lossless line and a resistive load (docs/references.md A4-A7), optionally in exact
   rationals.
 
 Every value is SI: [ohm], [s], [s/m], [F], [F/m], [V].  These are textbook
@@ -28,7 +28,7 @@ from numbers import Rational
 
 from .errors import ArgumentError
 
-# J&G's lumped rule (REFERENCES C5(a), from memory): a section is electrically short if its delay
+# J&G's lumped rule (docs/references.md C5(a), from memory): a section is electrically short if its delay
 # is under 1/6 of the rise time.  Used only to flag estimates that may not hold.
 SHORT_SECTION_FRACTION = 1.0 / 6.0
 
@@ -68,10 +68,10 @@ def loaded_line(z0: float, delay: float, c_load: float, spacing: float) -> Loade
     """Effective impedance and delay of a line loaded every ``spacing`` by ``c_load``.
 
     z0 [ohm], delay [s/m] of the bare line; c_load [F] per load; spacing [m].
-    Cd = c_load/spacing [F/m], C0 = delay/z0 [F/m] (REFERENCES B1), and
-    Z0' = Z0/sqrt(1 + Cd/C0), t_pd' = t_pd sqrt(1 + Cd/C0) (REFERENCES C1; TI SCBA015A
+    Cd = c_load/spacing [F/m], C0 = delay/z0 [F/m] (docs/references.md B1), and
+    Z0' = Z0/sqrt(1 + Cd/C0), t_pd' = t_pd sqrt(1 + Cd/C0) (docs/references.md C1; TI SCBA015A
     Fig. 2 and Johnson & Graham 1993 section 4.4.3.1).  The continuum limit:
-    valid while the spacing's delay is short against the edge (REFERENCES C5).
+    valid while the spacing's delay is short against the edge (docs/references.md C5).
     """
     z0 = _finite_positive(z0, "z0")
     delay = _finite_positive(delay, "delay")
@@ -94,7 +94,7 @@ class SegmentLoading:
     name: "segment 3" or the line type's name; line: line type; length [m];
     c_assigned [F]: the tap capacitance given to it; loaded: the :class:`LoadedLine`;
     flight [s] = length * delay_loaded; section_fraction [-] = flight / rise time
-    of the design's edge (> 1/6: the continuum estimate is doubtful, REFERENCES C5(a)).
+    of the design's edge (> 1/6: the continuum estimate is doubtful, docs/references.md C5(a)).
     """
     name: str
     line: str
@@ -132,10 +132,10 @@ class LoadedLinesReport:
 def tap_capacitance(design) -> dict[str, float]:
     """Capacitance [F] each tap hangs on its bus node: part c_pin plus its stub's own capacitance.
 
-    The stub counts as its total line capacitance length*delay/z0 [F] (REFERENCES B1;
+    The stub counts as its total line capacitance length*delay/z0 [F] (docs/references.md B1;
     TI SCEA019 Q8 adds stub trace capacitance the same way); package inductance
     and series resistors are ignored.  Lumping a stub this way holds only while
-    the stub is short against the edge (REFERENCES C5); a longer stub rings, and
+    the stub is short against the edge (docs/references.md C5); a longer stub rings, and
     only the simulation shows that.
     """
     out = {}
@@ -216,7 +216,7 @@ class Discontinuity:
     kind: "junction", "device", "driver"; arriving_on: the segment or stub the
     wave travels on; z_line [ohm]: that line's Z0; z_load [ohm]: what it sees
     (math.inf = open); gamma [-] = (z_load - z_line)/(z_load + z_line) (1 for open);
-    transmission [-] = 1 + gamma (the voltage passed on to every branch, REFERENCES A2, A8);
+    transmission [-] = 1 + gamma (the voltage passed on to every branch, docs/references.md A2, A8);
     tau [s]: time constant of the capacitance at that point with the resistance it sees (0 if none).
     """
     where: str
@@ -235,7 +235,7 @@ class Discontinuity:
 
 
 def reflection(z_line: float, z_load: float) -> float:
-    """Voltage reflection coefficient [-] = (ZL - Z0)/(ZL + Z0) (REFERENCES A1); z_load = inf -> +1."""
+    """Voltage reflection coefficient [-] = (ZL - Z0)/(ZL + Z0) (docs/references.md A1); z_load = inf -> +1."""
     if math.isinf(z_load):
         return 1.0
     return (z_load - z_line) / (z_load + z_line)
@@ -269,7 +269,7 @@ def discontinuities(design) -> tuple[Discontinuity, ...]:
     At each bus node, for every line attached to it (trunk segments and tap
     stubs), the wave arriving on that line sees all the *other* attached lines
     in parallel with the node's terminations and the resistive load of any tap
-    sitting directly on the node (REFERENCES A8, A9).  At the device end of
+    sitting directly on the node (docs/references.md A8, A9).  At the device end of
     each stub, the wave sees the device; each tap that can drive gives a record
     per output state (the wave coming back to the driver).  All under
     :data:`RESISTIVE_RULE`.  Records come in node order, then taps in file order.
@@ -397,11 +397,11 @@ def bounce_table(rs, z0, rl, v_step=1, n: int = 6, *, exact: bool = False, v_ini
     open, 0 = short), v_step [V] the EMF step, n the number of arrivals at the
     load (the table has 2n + 1 rows: the launch at t = 0, then load and source in
     turn).  v_initial [V]: the line's DC level before the step (the same at both
-    ends); launch [V]: the first wave, when not v_step z0/(z0 + rs) (REFERENCES
-    A3) -- e.g. -Idc z0 for a driver that cuts off (REFERENCES A7).
+    ends); launch [V]: the first wave, when not v_step z0/(z0 + rs) (docs/references.md
+    A3) -- e.g. -Idc z0 for a driver that cuts off (docs/references.md A7).
     exact=True computes in fractions.Fraction (inputs must then be int,
     Fraction or None/inf for open).  Source: the lattice method (Blood 1988
-    ch. 7; REFERENCES A4-A7).
+    ch. 7; docs/references.md A4-A7).
     """
     if not isinstance(n, int) or isinstance(n, bool) or n < 1:
         raise ArgumentError(f"bounce_table: n must be a whole number >= 1, got {n!r}")
@@ -440,7 +440,7 @@ def bounce_table(rs, z0, rl, v_step=1, n: int = 6, *, exact: bool = False, v_ini
     else:
         v1 = conv(launch)
     v0 = conv(v_initial)
-    # steady state: the resistive divider (REFERENCES A4), or v_initial + the geometric sum of the waves
+    # steady state: the resistive divider (docs/references.md A4), or v_initial + the geometric sum of the waves
     if launch is None and rs_ is not None and not (rs_ == 0 and rl_ == 0):
         v_final = conv(v_step) + v0 if rl_ is None else conv(v_step) * rl_ / (rs_ + rl_) + v0
     elif rs_ == 0 and rl_ == 0:

@@ -13,7 +13,7 @@ impedance coupons or a TDR measurement.
 
 Public entry point: :func:`line` (``budget.geometry.line(kind, **dims)``).
 
-Kinds and keys (a contract, DESIGN.md section 10):
+Kinds and keys (a contract, docs/cli.md, `line`):
 
 ==========================  ======================  =====================================
 kind                        keys                    formula
@@ -118,7 +118,7 @@ class CrossSection:
 
 
 def delay_from_er_eff(er_eff: float) -> float:
-    """Delay per length [s/m] of a TEM/quasi-TEM wave, sqrt(er_eff)/c (REFERENCES B2)."""
+    """Delay per length [s/m] of a TEM/quasi-TEM wave, sqrt(er_eff)/c (docs/references.md B2)."""
     return math.sqrt(er_eff) / C_LIGHT
 
 
@@ -133,7 +133,7 @@ def _warn(formula: str, what: str, value: float, lo: float | None, hi: float | N
 # coax and two-wire line: exact TEM solutions in a homogeneous dielectric
 
 def coax_z0(d: float, D: float, er: float) -> float:
-    """Coaxial line Z0 [ohm] = eta0/(2 pi sqrt(er)) ln(D/d); exact for TEM (Pozar 2012 Table 2.1; REFERENCES B3).
+    """Coaxial line Z0 [ohm] = eta0/(2 pi sqrt(er)) ln(D/d); exact for TEM (Pozar 2012 Table 2.1; docs/references.md B3).
 
     d [m] inner conductor diameter, D [m] inside diameter of the shield, er [-].
     """
@@ -156,13 +156,13 @@ def two_wire_z0(d: float, s: float, er: float) -> float:
 # microstrip: Hammerstad & Jensen 1980
 
 def _hj_z01(u: float) -> float:
-    """Air-filled microstrip Z0 [ohm] at width/height u [-] ([HJ80] eq. for Z01; REFERENCES B6)."""
+    """Air-filled microstrip Z0 [ohm] at width/height u [-] ([HJ80] eq. for Z01; docs/references.md B6)."""
     f = 6.0 + (2.0 * math.pi - 6.0) * math.exp(-((30.666 / u) ** 0.7528))
     return ETA0 / (2.0 * math.pi) * math.log(f / u + math.sqrt(1.0 + (2.0 / u) ** 2))
 
 
 def _hj_er_eff(u: float, er: float) -> float:
-    """Zero-thickness microstrip effective permittivity [-] ([HJ80]; REFERENCES B6)."""
+    """Zero-thickness microstrip effective permittivity [-] ([HJ80]; docs/references.md B6)."""
     a = (1.0 + math.log((u ** 4 + (u / 52.0) ** 2) / (u ** 4 + 0.432)) / 49.0
          + math.log(1.0 + (u / 18.1) ** 3) / 18.7)
     b = 0.564 * ((er - 0.9) / (er + 3.0)) ** 0.053
@@ -190,7 +190,7 @@ def microstrip(w: float, h: float, t: float, er: float) -> tuple[float, float]:
     er [-] substrate permittivity.  No solder mask, no dispersion.
 
     Z0 = Z01(ur)/sqrt(er_eff(ur)), er_eff = er_eff(ur) (Z01(u1)/Z01(ur))^2 ([HJ80]).
-    Stated accuracy (authors, REFERENCES B6, from memory): Z01 within 0.03 % for
+    Stated accuracy (authors, docs/references.md B6, from memory): Z01 within 0.03 % for
     u <= 1000, er_eff within 0.2 % for er <= 128 and 0.01 <= u <= 100.  Warns
     outside 0.01 <= w/h <= 100, er <= 128, and where the thin-strip thickness
     correction is stretched (t > w or t > h; the project's limit).
@@ -222,7 +222,7 @@ def _k_ratio_sech_tanh(x: float) -> float:
 
 
 def stripline_cohn_z0(w: float, b: float, er: float) -> float:
-    """Exact zero-thickness centred stripline Z0 [ohm] (Cohn 1954; Pozar 2012 section 3.7; REFERENCES B9).
+    """Exact zero-thickness centred stripline Z0 [ohm] (Cohn 1954; Pozar 2012 section 3.7; docs/references.md B9).
 
     Z0 = eta0/(4 sqrt(er)) K(k)/K(k'), k = sech(pi w/(2b)), k' = tanh(pi w/(2b)).
     w [m] strip width, b [m] ground-to-ground spacing, er [-].

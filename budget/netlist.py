@@ -307,7 +307,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             raise DesignError("r_dc is zero in some variants and positive in others; give it a small "
                               "positive minimum", source=design.source, table=f"lines.{line_name}", key="r_dc")
         if etd_min < dt * (1 - 1e-9):
-            # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (REFERENCES B1).
+            # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (docs/references.md B1).
             ring = 2 * _vmax(td) / (math.pi * _vmin(t_ramp_edge)) * 100
             notes.append(f"{label}: delay {_vmin(td) * 1e12:.3g} ps is below the time step "
                          f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2), which cannot ring "

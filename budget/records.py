@@ -35,7 +35,7 @@ from pathlib import Path
 from .errors import ArgumentError, RecordError
 
 SCHEMA = "busbudget.record/1"
-# keys every record carries (DESIGN.md section 8), in the order they are written
+# keys every record carries (docs/cli.md), in the order they are written
 KEYS = ("schema", "time", "serial", "command", "design_sha256", "inputs_sha256", "verdict", "worst",
         "margins", "tool_version")
 VERDICTS = ("pass", "fail")

@@ -3,7 +3,7 @@
 :class:`CheckReport` is what :func:`budget.check.check` returns; this module
 owns it, its JSON schema and both renderings.
 
-JSON (schema ``busbudget.check/1``, DESIGN.md section 5 is the contract; keys
+JSON (schema ``busbudget.check/1``, docs/metrics.md is the contract; keys
 are only ever added): SI units (volts, seconds), ``null`` for a time that
 never occurs, never NaN.  Extensions beyond the contract are listed in
 :data:`JSON_EXTENSIONS`.
@@ -54,7 +54,7 @@ class CheckReport:
     passed, verdict ("pass"/"fail"); worst: the worst case (driver, receiver,
     edge, corner, metric, value, plus headroom [V], percent_of_swing,
     violations, analysis); results: one dict per (driver, receiver, edge,
-    corner) with the JSON contract keys (DESIGN.md section 5) -- the nominal
+    corner) with the JSON contract keys (docs/metrics.md) -- the nominal
     design, plus, for each tolerance analysis, the worst variant of that
     analysis for each (driver, receiver, edge), never every sample; analyses:
     settings and summaries of each analysis run; variants: label -> the

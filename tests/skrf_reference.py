@@ -1,7 +1,7 @@
 """Independent frequency-domain reference for pin waveforms, built on scikit-rf.
 
-This is the outside oracle for the transient engine (DESIGN.md section 2,
-"accuracy target").  It shares nothing with the engine but the Design model
+This is the outside oracle for the transient engine (docs/metrics.md,
+"Accuracy target").  It shares nothing with the engine but the Design model
 objects: it reads ``design.lines``, ``design.segments``, ``design.taps``,
 ``design.parts``, ``design.terminations`` and ``design.edge`` and never imports
 ``budget.netlist`` or ``budget.kernels``.
@@ -16,14 +16,14 @@ function describes.)  Designs with array values (batches) are not accepted.
 
 Method
 ------
-1. Circuit, written here from the device-chain contract (DESIGN.md section 2):
+1. Circuit, written here from the device-chain contract, docs/design-file.md:
    bus node -- stub line (optional) -- series termination R (optional) -- pad --
    l_pkg (optional) -- die; the die carries c_pin and r_in to ground and the
    driver's source.  Terminations: parallel r to v; thevenin r_up to v_up and
    r_down to ground; rc = r in series with c to ground; series = the R above.
 2. Lines (every segment and every stub, however short): one exact uniform
    RLGC line with G' = 0, L' = z0 * delay, C' = delay / z0 per metre
-   (REFERENCES B1) and R' = r_dc, so
+   (docs/references.md B1) and R' = r_dc, so
    ``gamma = sqrt((R' + jwL')(jwC'))`` and ``Zc = sqrt((R' + jwL')/(jwC'))``
    (telegrapher's equations; D. M. Pozar, *Microwave Engineering*, 4th ed.,
    Wiley 2012, section 2.1 -- from memory).  The two-port is made by
@@ -137,7 +137,7 @@ class Reference:
 
 
 # ---------------------------------------------------------------------------
-# circuit built from the Design model (device-chain contract, DESIGN.md section 2)
+# circuit built from the Design model (device-chain contract, docs/design-file.md)
 
 @dataclass
 class _Circuit:
@@ -302,7 +302,7 @@ def line_y(f, z0, delay, r_dc, length) -> np.ndarray:
     """Y parameters [S] ``[nf, 2, 2]`` of a uniform RLC line at frequencies f [Hz] > 0, by scikit-rf.
 
     z0 [ohm] lossless characteristic impedance, delay [s/m], r_dc [ohm/m]
-    series resistance, length [m].  L' = z0 delay, C' = delay / z0 (REFERENCES B1).
+    series resistance, length [m].  L' = z0 delay, C' = delay / z0 (docs/references.md B1).
     """
     f = np.asarray(f, dtype=float)
     w = 2 * np.pi * f

@@ -4,7 +4,7 @@ Standards rows use a lumped link (driver and receiver on one node, no line):
 after the edge the pin settles exactly at the driver's DC level into its load,
 so each margin must equal the standard's noise margin, NMH = VOH - VIH and
 NML = VIL - VOL (J. F. Wakerly, *Digital Design: Principles and Practices*,
-3rd ed., 2000, section 3.5 -- from memory; REFERENCES E8), or for a
+3rd ed., 2000, section 3.5 -- from memory; docs/references.md E8), or for a
 differential receiver |VID| - |threshold|.
 """
 from __future__ import annotations
@@ -77,23 +77,23 @@ part = "rx"
 # (id, open-circuit VOH [V], VOL [V], r_out [ohm], termination [ohm] or None, VIH, VIL, signaling,
 #  expected margin high [V], margin low [V])
 STANDARDS = [
-    # REFERENCES E5: JEDEC JESD8C LVTTL, VOH 2.4 / VOL 0.4 V, VIH 2.0 / VIL 0.8 V -> 0.4 / 0.4 V
+    # docs/references.md E5: JEDEC JESD8C LVTTL, VOH 2.4 / VOL 0.4 V, VIH 2.0 / VIL 0.8 V -> 0.4 / 0.4 V
     # (limits from memory; 2.0/0.8 and 2.4/0.4 V seen secondhand in TI datasheets)
     ("LVTTL JESD8C", 2.4, 0.4, 20.0, None, 2.0, 0.8, "single-ended", 0.4, 0.4),
-    # REFERENCES E5: JESD8C LVCMOS at VDD = 3.0 V, VOH = VDD - 0.2 V, VOL 0.2 V -> 0.8 / 0.6 V
+    # docs/references.md E5: JESD8C LVCMOS at VDD = 3.0 V, VOH = VDD - 0.2 V, VOL 0.2 V -> 0.8 / 0.6 V
     ("LVCMOS 3.3 V JESD8C at VDD 3.0 V", 2.8, 0.2, 20.0, None, 2.0, 0.8, "single-ended", 0.8, 0.6),
-    # REFERENCES E6: JEDEC JESD8-5 2.5 V CMOS at 1 mA, VOH 2.0 / VOL 0.4, VIH 1.7 / VIL 0.7 -> 0.3 / 0.3 V
+    # docs/references.md E6: JEDEC JESD8-5 2.5 V CMOS at 1 mA, VOH 2.0 / VOL 0.4, VIH 1.7 / VIL 0.7 -> 0.3 / 0.3 V
     ("2.5 V CMOS JESD8-5 at 1 mA", 2.0, 0.4, 20.0, None, 1.7, 0.7, "single-ended", 0.3, 0.3),
-    # REFERENCES E7: JEDEC JESD8-7 1.8 V at VDD 1.65 V: VIH 0.65 VDD = 1.0725, VIL 0.35 VDD = 0.5775,
+    # docs/references.md E7: JEDEC JESD8-7 1.8 V at VDD 1.65 V: VIH 0.65 VDD = 1.0725, VIL 0.35 VDD = 0.5775,
     # VOH = VDD - 0.45 = 1.2, VOL 0.45 -> 0.1275 / 0.1275 V
     ("1.8 V JESD8-7 at VDD 1.65 V", 1.2, 0.45, 20.0, None, 1.0725, 0.5775, "single-ended", 0.1275, 0.1275),
-    # REFERENCES E9: PCI 3.3 V signalling, VIH 0.5 Vcc, VIL 0.3 Vcc, VOH 0.9 Vcc, VOL 0.1 Vcc at Vcc = 3.3 V
+    # docs/references.md E9: PCI 3.3 V signalling, VIH 0.5 Vcc, VIL 0.3 Vcc, VOH 0.9 Vcc, VOL 0.1 Vcc at Vcc = 3.3 V
     # (seen secondhand) -> 2.97 - 1.65 = 1.32 V, 0.99 - 0.33 = 0.66 V
     ("PCI 3.3 V", 2.97, 0.33, 20.0, None, 1.65, 0.99, "single-ended", 1.32, 0.66),
-    # REFERENCES E1: TIA/EIA-485-A, |VOD| >= 1.5 V into 54 ohm (3 V open circuit behind 54 ohm here),
+    # docs/references.md E1: TIA/EIA-485-A, |VOD| >= 1.5 V into 54 ohm (3 V open circuit behind 54 ohm here),
     # receiver thresholds +-200 mV -> 1.5 - 0.2 = 1.3 V both ways (seen secondhand)
     ("RS-485 TIA/EIA-485-A", 3.0, -3.0, 54.0, 54.0, 0.2, -0.2, "differential", 1.3, 1.3),
-    # REFERENCES E3: ISO 11898-2 CAN, dominant VDiff >= 1.5 V into 60 ohm, recessive VDiff <= 0.05 V
+    # docs/references.md E3: ISO 11898-2 CAN, dominant VDiff >= 1.5 V into 60 ohm, recessive VDiff <= 0.05 V
     # (from memory), receiver dominant above 0.9 V, recessive below 0.5 V -> 0.6 V and 0.45 V
     ("CAN ISO 11898-2", 3.0, 0.1, 60.0, 60.0, 0.9, 0.5, "differential", 0.6, 0.45),
 ]
@@ -112,7 +112,7 @@ def test_margins_equal_the_published_noise_margins(row):
 
 
 def test_allocations_in_volts_and_percent_of_swing_come_off_the_margin():
-    # LVTTL link (NMH = 0.4 V, REFERENCES E5), swing 2.4 - 0.4 = 2.0 V:
+    # LVTTL link (NMH = 0.4 V, docs/references.md E5), swing 2.4 - 0.4 = 2.0 V:
     # 100 mV crosstalk + 5 % of 2.0 V supply noise leave 0.4 - 0.1 - 0.1 = 0.2 V.
     table = '[budget]\ncrosstalk = "100 mV"\nsupply_noise = "5%"\nmin_margin = "150 mV"\n'
     report = check(budget.loads(lumped(2.4, 0.4, 20.0, 2.0, 0.8, budget_table=table)))
@@ -138,7 +138,7 @@ def test_overshoot_beyond_the_absolute_maximum_names_driver_receiver_edge():
     assert w["metric"] == "overshoot"
     assert "above absolute maximum" in w["violations"]
     # the far end of an open line driven through 5 ohm nearly doubles the 3.3 V step
-    # (REFERENCES A4 lattice: V1 = 3.3 * 50/55 = 3.0 V, Gamma_L = +1 -> about 6 V)
+    # (docs/references.md A4 lattice: V1 = 3.3 * 50/55 = 3.0 V, Gamma_L = +1 -> about 6 V)
     row = report.rows(driver="FAST", receiver="FAR", edge="rise")[0]
     assert 5.0 < row["v_peak"] < 6.6
     assert w["headroom"] == pytest.approx(4.6 - row["v_peak"])
@@ -239,7 +239,7 @@ def test_nominal_check_agrees_with_sweep_and_with_simulate_plus_metrics():
     w = budget.simulate(design, "D", "rise")
     j = w.index("R1")
     v_lo, v_hi = float(w.v_low[j]), float(w.v_high[j])
-    t_ref = 0.5 * design.edge.rise / 0.8           # ideal ramp reaches 50 % half way (REFERENCES D3)
+    t_ref = 0.5 * design.edge.rise / 0.8           # ideal ramp reaches 50 % half way (docs/references.md D3)
     m = edge_metrics(w.t, w["R1"], edge="rise", v_lo=v_lo, v_hi=v_hi, vil=0.8, vih=2.0, t_ref=t_ref)
     row = report.rows(edge="rise")[0]
     assert row["margin_high"] == pytest.approx(direct.margin[0, 0, 0, direct.receivers.index("R1")], abs=1e-12)

@@ -1,4 +1,4 @@
-"""Engine waveforms against closed-form transmission-line results (REFERENCES.md section A).
+"""Engine waveforms against closed-form transmission-line results (docs/references.md section A).
 
 Every check value carries its source beside it.  Set-up common to all cases:
 a fast edge (10-90 % = 10 ps, so the linear ramp lasts 12.5 ps), an explicit
@@ -22,7 +22,7 @@ from conftest import accuracy_record
 
 TOL_OF_STEP = 0.005   # brief: plateau error below 0.5 % of the step [-]
 TD = 1e-9             # one-way delay of the 1 m lines at 1 ns/m [s]
-RAMP = 12.5e-12       # 0-100 % ramp = 10-90 % time / 0.8 (REFERENCES D3) [s]
+RAMP = 12.5e-12       # 0-100 % ramp = 10-90 % time / 0.8 (docs/references.md D3) [s]
 
 
 def header(name, *, rs, v_high=1.0, r_low=None, v_low=0.0, t_stop="13 ns", c_probe="0 pF", dt="1 ps"):
@@ -126,11 +126,11 @@ class Worst:
 # ---------------------------------------------------------------------------
 # lattice diagrams
 
-# REFERENCES A4 (lattice method as in W. R. Blood Jr., MECL System Design Handbook, 4th ed.,
+# docs/references.md A4 (lattice method as in W. R. Blood Jr., MECL System Design Handbook, 4th ed.,
 # Motorola HB205, 1988, ch. 7; numbers derived, exact rationals): Rs = 25, Z0 = 50, open end, 1 V.
 A4_LOAD = [F(4, 3), F(8, 9), F(28, 27), F(80, 81), F(244, 243), F(728, 729)]          # t = 1,3,..,11 TD
 A4_SOURCE = [F(2, 3), F(10, 9), F(26, 27), F(82, 81), F(242, 243), F(730, 729)]       # t = 0,2,..,10 TD
-# REFERENCES A5 (same source; numbers derived): Rs = 10, Z0 = 50, RL = 200 ohm to 0 V, 1 V step.
+# docs/references.md A5 (same source; numbers derived): Rs = 10, Z0 = 50, RL = 200 ohm to 0 V, 1 V step.
 A5_LOAD = [F(4, 3), F(4, 5), F(76, 75), F(116, 125), F(1804, 1875), F(2964, 3125)]
 A5_SOURCE = [F(5, 6), F(1), F(14, 15), F(24, 25), F(356, 375), F(596, 625)]
 A5_FINAL = F(20, 21)   # Vs RL/(Rs + RL) = 200/210
@@ -149,7 +149,7 @@ def test_lattice_plateaus(case, dt):
             + tap("SRC", "a", "src") + tap("END", "b") + parallel("b", 200.0)
         load, source = A5_LOAD, A5_SOURCE
     w = budget.simulate(budget.loads(text), driver="SRC", edge="rise")
-    worst = Worst(f"{case} lattice (REFERENCES {case}), dt {dt}", 1.0)
+    worst = Worst(f"{case} lattice (docs/references.md {case}), dt {dt}", 1.0)
     worst.check(plateau(w, "END", 0, TD), 0.0, "load before the first arrival")
     for k, v in enumerate(load):          # load plateau from (2k+1) TD to (2k+3) TD
         worst.check(plateau(w, "END", (2 * k + 1) * TD + RAMP, (2 * k + 3) * TD), v, f"load at {2 * k + 1} TD")
@@ -160,7 +160,7 @@ def test_lattice_plateaus(case, dt):
     worst.done()
 
 
-# REFERENCES A6: W. D. Stevenson Jr., Elements of Power System Analysis, 4th ed., McGraw-Hill 1982,
+# docs/references.md A6: W. D. Stevenson Jr., Elements of Power System Analysis, 4th ed., McGraw-Hill 1982,
 # ch. 5, Example 5.6 (p. 119), seen secondhand in the FOSSEE Scilab textbook companion:
 # 120 V DC step, Zc = 30 ohm, zero source impedance, receiving end ZR = 90 or 10 ohm.
 # Receiving-end voltage at t = 1, 3, 5, 7, 9 T.  The companion *assumes* Zs = 0; an ideal
@@ -182,9 +182,9 @@ def test_stevenson_example_5_6(zr):
 
 
 # ---------------------------------------------------------------------------
-# reflection coefficients: matched, open, short (REFERENCES A1: Gamma = (ZL - Z0)/(ZL + Z0);
+# reflection coefficients: matched, open, short (docs/references.md A1: Gamma = (ZL - Z0)/(ZL + Z0);
 # open -> +1, short -> -1, matched -> 0; Blood 1988 ch. 7 seen secondhand, Pozar 2012 section 2.3
-# from memory).  A matched 50 ohm source launches 1/2 V (REFERENCES A3, TI SCBA015A Eq. 3), so
+# from memory).  A matched 50 ohm source launches 1/2 V (docs/references.md A3, TI SCBA015A Eq. 3), so
 # the source end reads 1/2 (1 + Gamma) after one round trip and the far end (1 + Gamma)/2.
 
 @pytest.mark.parametrize("end, gamma", [("matched", 0.0), ("open", 1.0), ("short", -1.0)])
@@ -203,7 +203,7 @@ def test_end_reflection(end, gamma):
     worst.done()
 
 
-# REFERENCES A2: voltage transmission coefficient T = 1 + Gamma = 2 ZL/(ZL + Z0) (Pozar 2012
+# docs/references.md A2: voltage transmission coefficient T = 1 + Gamma = 2 ZL/(ZL + Z0) (Pozar 2012
 # section 2.3, from memory; numbers derived).  A 30 ohm line into a 120 ohm line: T = 240/150 = 1.6;
 # the open end of the 120 ohm line doubles it: 3.2 x the launched wave.  With a 1 ohm source the
 # launched wave is 30/31 V (A3), so the open end reaches 3.2 x 30/31 = 3.0968 V from a 1 V source:
@@ -222,7 +222,7 @@ def test_impedance_step_up_transmission():
 
 
 # ---------------------------------------------------------------------------
-# REFERENCES A8: one line feeding N identical lines: Gamma = (Z2/N - Z1)/(Z2/N + Z1), T = 1 + Gamma
+# docs/references.md A8: one line feeding N identical lines: Gamma = (Z2/N - Z1)/(Z2/N + Z1), T = 1 + Gamma
 # (Pozar 2012 section 2.3, from memory; 50 into 2 x 50 -> T = 2/3 derived there, N = 3 derived
 # here from the same formula: Gamma = -1/2, T = 1/2).  Branch ends matched, matched source.
 
@@ -242,7 +242,7 @@ def test_star_split_transmission(n_branches, t_expected):
     worst.done()
 
 
-# REFERENCES A9 (derived from A1 at a T junction): wave on trunk Z0 meets stub Zs in parallel with
+# docs/references.md A9 (derived from A1 at a T junction): wave on trunk Z0 meets stub Zs in parallel with
 # the continuing trunk: T = 2 Zs/(Z0 + 2 Zs); the wave returning from the stub sees Z0/2:
 # Gamma_stub = (Z0/2 - Zs)/(Z0/2 + Zs).  Examples printed in A9: Zs = 50 -> T 2/3, Gamma_stub -1/3;
 # Zs = 75 -> T 0.75; Zs = 100 -> T 0.8 (Gamma_stub -0.5 and -0.6 derived from the same formula).
@@ -270,7 +270,7 @@ def test_mid_trunk_tap(zs, t_exp, g_stub):
 
 
 # ---------------------------------------------------------------------------
-# REFERENCES A10 (closed form derived there; tau = Z0 C/2 rule in E. Bogatin, Signal and Power
+# docs/references.md A10 (closed form derived there; tau = Z0 C/2 rule in E. Bogatin, Signal and Power
 # Integrity - Simplified, 2nd ed., 2009, from memory): a shunt C on a matched through-line sees a
 # Thevenin source (V_inc, Z0/2), tau = Z0 C/2; Z0 = 50, C = 2 pF -> tau = 50 ps.
 # For a linear ramp of duration Tr the node follows the RC low-pass response, after the ramp
@@ -278,7 +278,7 @@ def test_mid_trunk_tap(zs, t_exp, g_stub):
 # convolving the step response 1 - exp(-t/tau) with the ramp).
 #
 # RC termination at an open end (derived the same way from the line's Thevenin source 2 V_inc
-# behind Z0, REFERENCES A3): the step response is V_inc (2 - exp(-t/tau)) with tau = (Z0 + R) C.
+# behind Z0, docs/references.md A3): the step response is V_inc (2 - exp(-t/tau)) with tau = (Z0 + R) C.
 
 def _after_ramp(t, tau, tr, final, jump):
     """final - jump (tau/tr)(exp(tr/tau) - 1) exp(-t/tau): ramp response of final - jump exp(-t/tau)."""
@@ -322,7 +322,7 @@ c = "10 pF"
 
 
 # ---------------------------------------------------------------------------
-# REFERENCES A7: W. R. Blood Jr., MECL System Design Handbook, 4th ed., 1988, ch. 7, "Example 2"
+# docs/references.md A7: W. R. Blood Jr., MECL System Design Handbook, 4th ed., 1988, ch. 7, "Example 2"
 # (seen secondhand): V'OH = 1.22 V behind Ro = 5 ohm, Z0 = 50, RL = 100 ohm to 0 V; on the falling
 # edge the output cuts off (modelled as r_low = 1 Gohm), launching -Idc Z0.
 # Printed: Idc 11.6 mA, V1 0.58 V, V_B(TD) 0.387 V; exact: 0.58095 V and 0.38730 V.
@@ -344,7 +344,7 @@ def test_ecl_cutoff_falling_edge():
 
 
 # ---------------------------------------------------------------------------
-# REFERENCES F3 (arithmetic, common practice): Thevenin termination R1 (to Vcc) || R2 (to 0 V) = Z0,
+# docs/references.md F3 (arithmetic, common practice): Thevenin termination R1 (to Vcc) || R2 (to 0 V) = Z0,
 # Vtt = Vcc R2/(R1 + R2).  Z0 = 50, Vcc = 3.3, Vtt = 1.5 -> R1 = 110.000, R2 = 91.667;
 # E24 110/91 -> 49.8010 ohm, 1.49403 V (printed).  The engine's DC levels in the two driver
 # states give back the termination's Thevenin equivalent: V = (Vs/Rs + Vtt/Rth)/(1/Rs + 1/Rth).

@@ -1,7 +1,7 @@
 """Design-file loading: every validation rule, through the API and the CLI.
 
 Each rejected case names what the message must contain: the file, the table and
-the key (DEVELOPERS.md, "Design file").
+the key (docs/design-file.md).
 """
 from __future__ import annotations
 
@@ -101,7 +101,7 @@ def test_base_design_loads_with_si_values():
 
 
 def test_er_eff_gives_delay_from_the_speed_of_light():
-    # REFERENCES B2: t_pd = sqrt(eps_eff)/c; eps 4.0 -> 6.671282 ns/m (exact, c is defined)
+    # docs/references.md B2: t_pd = sqrt(eps_eff)/c; eps 4.0 -> 6.671282 ns/m (exact, c is defined)
     d = budget.loads(edit('delay = "6.7 ns/m"', "er_eff = 4.0"))
     assert d.lines["trunk"].delay == pytest.approx(6.671282e-9, rel=1e-6)
 

@@ -1,7 +1,7 @@
 """Quick estimates (budget.estimates): loaded lines, reflection coefficients, bounce tables.
 
-Check values carry their source; "REFERENCES Xn" is the project's list of published check
-values (DEVELOPERS.md), quoted with the original source.  The loaded-line estimate is also
+Check values carry their source; "docs/references.md Xn" is the project's list of published check
+values, quoted with the original source.  The loaded-line estimate is also
 compared with the transient engine on a densely loaded trunk.
 """
 from __future__ import annotations
@@ -26,10 +26,10 @@ PF = 1e-12
 
 
 # ---------------------------------------------------------------------------
-# (a) loaded line: REFERENCES C1-C4
+# (a) loaded line: docs/references.md C1-C4
 
 def test_brief_example_c1():
-    # REFERENCES C1 (TI SCBA015A; Johnson & Graham 1993 section 4.4.3.1; numbers derived):
+    # docs/references.md C1 (TI SCBA015A; Johnson & Graham 1993 section 4.4.3.1; numbers derived):
     # 50 ohm, 6.7 ns/m, 5 pF every 20 mm -> C0 134 pF/m, Cd 250 pF/m, factor 1.692829, 29.5363 ohm, 11.3420 ns/m
     ll = loaded_line(50.0, 6.7e-9, 5e-12, 0.020)
     assert ll.c0 == pytest.approx(134e-12, rel=1e-12)
@@ -40,7 +40,7 @@ def test_brief_example_c1():
 
 
 def test_ti_scba015a_figure_2():
-    # REFERENCES C2 (TI SCBA015A Fig. 2, seen secondhand): L' = 6 nH/cm, C0' = 0.6 pF/cm (100 ohm, 6 ns/m),
+    # docs/references.md C2 (TI SCBA015A Fig. 2, seen secondhand): L' = 6 nH/cm, C0' = 0.6 pF/cm (100 ohm, 6 ns/m),
     # 20 pF per module every 2 cm.  Recomputed 23.7915 ohm, 25.2190 ns/m; printed 25 ohm (~5 %), 25 ns/m (~1 %).
     z0, delay = math.sqrt(6e-7 / 60e-12), math.sqrt(6e-7 * 60e-12)   # B1: Z0 = sqrt(L/C), t_pd = sqrt(LC)
     assert (z0, delay) == (pytest.approx(100.0, rel=1e-12), pytest.approx(6e-9, rel=1e-12))
@@ -52,7 +52,7 @@ def test_ti_scba015a_figure_2():
 
 
 def test_ti_szza016b_backplane():
-    # REFERENCES C3 (TI SZZA016B, seen secondhand): Z0 95 ohm, C0 2.40 pF/in, t_pd 230 ps/in; per card
+    # docs/references.md C3 (TI SZZA016B, seen secondhand): Z0 95 ohm, C0 2.40 pF/in, t_pd 230 ps/in; per card
     # 14.3647 pF at 0.94 in (printed 14.36) -> factor 95/35 = 2.714286 (printed 2.71), Z0(eff) 35 ohm.
     # The note's C0 and t_pd disagree by 0.9 % (230/95 = 2.421 pF/in): the delay given here is the one
     # that makes C0 = 2.40 pF/in, and the note's t_pd(eff) uses 230 ps/in times the factor.
@@ -67,16 +67,16 @@ def test_ti_szza016b_backplane():
 
 
 def test_ti_gtlp_figure_8_and_scea019():
-    # REFERENCES C4 (TI GTLP note Fig. 8, seen secondhand): 50 ohm, 4.10 pF/in, 205 ps/in; Ct 10.9625 pF
+    # docs/references.md C4 (TI GTLP note Fig. 8, seen secondhand): 50 ohm, 4.10 pF/in, 205 ps/in; Ct 10.9625 pF
     # every 0.875 in -> printed Cd 12.53 pF/in, t_pd' 412.85 ps/in, Z0' 24.8 / 24.83 ohm.  With Ct = 10.9625
-    # exactly: Cd 12.52857, t_pd' 412.85, Z0' 24.828 -- every printed digit.  (REFERENCES C4's own
+    # exactly: Cd 12.52857, t_pd' 412.85, Z0' 24.828 -- every printed digit.  (docs/references.md C4's own
     # recomputation, Cd 12.5257 and 412.81, used Ct = 10.96.)
     ll = loaded_line(50.0, 205e-12 / INCH, 10.9625e-12, 0.875 * INCH)
     assert ll.c0 == pytest.approx(4.10e-12 / INCH, rel=1e-12)
     assert ll.cd * INCH == pytest.approx(12.53e-12, abs=5e-15)
     assert ll.delay_loaded * INCH == pytest.approx(412.85e-12, abs=5e-15)
     assert ll.z0_loaded == pytest.approx(24.83, abs=5e-3)
-    # REFERENCES C4, TI SCEA019 Q8: 12.0 pF per card at 1 in pitch -> Cd = 472.44 pF/m (printed 472)
+    # docs/references.md C4, TI SCEA019 Q8: 12.0 pF per card at 1 in pitch -> Cd = 472.44 pF/m (printed 472)
     assert loaded_line(50.0, 205e-12 / INCH, 12e-12, INCH).cd == pytest.approx(472.44e-12, abs=5e-15)
 
 
@@ -84,7 +84,7 @@ def test_ti_gtlp_figure_8_and_scea019():
        p=st.floats(1e-3, 0.2))
 def test_loading_keeps_inductance_and_adds_capacitance(z0, delay, c, p):
     # the loads add shunt C and leave the series L alone: L' = Z0' t_pd' = Z0 t_pd and
-    # C' = t_pd'/Z0' = C0 + Cd (REFERENCES B1, C1 Johnson & Graham's form)
+    # C' = t_pd'/Z0' = C0 + Cd (docs/references.md B1, C1 Johnson & Graham's form)
     ll = loaded_line(z0, delay, c, p)
     assert ll.z0_loaded * ll.delay_loaded == pytest.approx(z0 * delay, rel=1e-12)
     assert ll.delay_loaded / ll.z0_loaded == pytest.approx(delay / z0 + c / p, rel=1e-12)
@@ -129,17 +129,17 @@ delay = "6.7 ns/m"
 def test_loaded_lines_of_a_uniform_trunk_is_the_textbook_estimate():
     report = loaded_lines(_dense_trunk(16, 30.0))
     assert len(report.segments) == 15 and [ln.name for ln in report.lines] == ["trunk"]
-    book = loaded_line(50.0, 6.7e-9, 5e-12, 0.020)          # REFERENCES C1
+    book = loaded_line(50.0, 6.7e-9, 5e-12, 0.020)          # docs/references.md C1
     for seg in (*report.segments, *report.lines):
         assert seg.loaded.z0_loaded == pytest.approx(book.z0_loaded, rel=1e-12)
         assert seg.loaded.delay_loaded == pytest.approx(book.delay_loaded, rel=1e-12)
     assert report.lines[0].flight == pytest.approx(0.3 * book.delay_loaded, rel=1e-12)
     assert report.lines[0].section_fraction == pytest.approx(0.02 * book.delay_loaded / 1e-9)
-    assert report.segments[0].short_enough is False     # 227 ps per section > 1 ns / 6 (REFERENCES C5(a))
+    assert report.segments[0].short_enough is False     # 227 ps per section > 1 ns / 6 (docs/references.md C5(a))
 
 
 def test_stub_capacitance_counts_as_load():
-    # a 10 mm, 60 ohm, 6.7 ns/m stub adds its line capacitance 0.01 * 6.7e-9 / 60 = 1.1167 pF (REFERENCES B1)
+    # a 10 mm, 60 ohm, 6.7 ns/m stub adds its line capacitance 0.01 * 6.7e-9 / 60 = 1.1167 pF (docs/references.md B1)
     design = _dense_trunk(4, 30.0, stub="10 mm")
     ctap = estimates.tap_capacitance(design)
     assert ctap["U1"] == pytest.approx(5e-12 + 0.01 * 6.7e-9 / 60.0, rel=1e-12)
@@ -152,7 +152,7 @@ def _crossing(t, v, level):
 
 
 def test_loaded_line_estimate_against_the_engine():
-    # 16 taps at 20 mm (REFERENCES C1's line), driver and far-end termination matched to the loaded
+    # 16 taps at 20 mm (docs/references.md C1's line), driver and far-end termination matched to the loaded
     # impedance.  Tolerance 3 % on the flight: the estimate is the continuum (low-frequency) limit of
     # the periodic loading; each 20 mm section is 227 ps against a 1 ns edge, so the ladder slows and
     # ripples the edge and moves its 50 % crossing by a few per cent of the flight at most.
@@ -170,7 +170,7 @@ def test_loaded_line_estimate_against_the_engine():
 
 def test_loaded_impedance_sets_the_launched_step():
     # Far end open, strong driver (20 ohm): the first step at the driver's pin is the divider
-    # 3.3 V * Z0'/(Z0' + 20) (REFERENCES A3 with Z0' from C1) = 1.9676 V; the unloaded 50 ohm would give 2.357 V.
+    # 3.3 V * Z0'/(Z0' + 20) (docs/references.md A3 with Z0' from C1) = 1.9676 V; the unloaded 50 ohm would give 2.357 V.
     # Read as the mean over 1..6 ns after the 50 % crossing (before the far-end echo at 2 x 3.4 ns);
     # tolerance 2 % (ripple of the discrete loads around the continuum value).
     est = loaded_line(50.0, 6.7e-9, 5e-12, 0.020)
@@ -185,10 +185,10 @@ def test_loaded_impedance_sets_the_launched_step():
 
 
 # ---------------------------------------------------------------------------
-# (b) reflection coefficients at discontinuities: REFERENCES A1, A2, A8, A9, A10
+# (b) reflection coefficients at discontinuities: docs/references.md A1, A2, A8, A9, A10
 
 @pytest.mark.parametrize("z0, zl, gamma", [
-    (50, 65, 15 / 115),     # REFERENCES A1 (Blood 1988 ch. 7 prints +0.13)
+    (50, 65, 15 / 115),     # docs/references.md A1 (Blood 1988 ch. 7 prints +0.13)
     (50, 100, 1 / 3), (25, 100, 0.6), (50, 5, -45 / 55), (50, 25, -1 / 3),   # A1
     (50, math.inf, 1.0), (50, 0.0, -1.0), (50, 50, 0.0),                    # open, short, matched
 ])
@@ -198,7 +198,7 @@ def test_reflection_coefficient(z0, zl, gamma):
 
 @given(z_line=st.floats(1.0, 500.0), z_load=st.floats(0.1, 1e5))
 def test_power_balance(z_line, z_load):
-    # REFERENCES A2: reflected plus transmitted power equals the incident power, Gamma^2 + T^2 Z0/ZL = 1
+    # docs/references.md A2: reflected plus transmitted power equals the incident power, Gamma^2 + T^2 Z0/ZL = 1
     g = reflection(z_line, z_load)
     assert g * g + (1 + g) ** 2 * z_line / z_load == pytest.approx(1.0, rel=1e-9)
     assert -1.0 <= g <= 1.0
@@ -265,7 +265,7 @@ def _find(records, where, on_prefix):
 
 
 @pytest.mark.parametrize("z_stub, gamma, trans, gamma_stub", [
-    (50.0, -1 / 3, 2 / 3, -1 / 3),    # REFERENCES A9 (derived from A1): Z0 = Zs = 50
+    (50.0, -1 / 3, 2 / 3, -1 / 3),    # docs/references.md A9 (derived from A1): Z0 = Zs = 50
     (75.0, -0.25, 0.75, -0.5),        # A9: Zs = 75 -> Zpar 30; from the stub: (25 - 75)/(25 + 75)
     (100.0, -0.2, 0.8, -0.6),         # A9: Zs = 100
 ])
@@ -279,16 +279,16 @@ def test_mid_trunk_tap(z_stub, gamma, trans, gamma_stub):
 
 
 def test_line_ends_terminations_and_drivers():
-    # far end b: R2 has no stub, no r_in, c_pin 0 -> open, Gamma = +1, T = 2 (REFERENCES A1)
+    # far end b: R2 has no stub, no r_in, c_pin 0 -> open, Gamma = +1, T = 2 (docs/references.md A1)
     recs = discontinuities(_tbus(50.0))
     end = _find(recs, "node b", "segment 1")
     assert (end.gamma, end.transmission, end.z_load) == (1.0, 2.0, math.inf)
     assert end.to_json()["z_load"] is None
     # the device end of R1's stub: an open pin (c_pin open under the resistive rule)
     assert _find(recs, "device end of stub R1", "stub R1").gamma == 1.0
-    # the driver D on node a: a wave coming back sees 5 ohm -> -45/55 (REFERENCES A1, handbook -0.82)
+    # the driver D on node a: a wave coming back sees 5 ohm -> -45/55 (docs/references.md A1, handbook -0.82)
     assert _find(recs, "driver D (high) at node a", "segment 0").gamma == pytest.approx(-45 / 55, rel=1e-12)
-    # parallel 65 ohm at b: (65 - 50)/(65 + 50) (REFERENCES A1, Blood 1988: +0.13)
+    # parallel 65 ohm at b: (65 - 50)/(65 + 50) (docs/references.md A1, Blood 1988: +0.13)
     term = '[[termination]]\nnode = "b"\ntype = "parallel"\nr = "65 ohm"\nv = "0.5 V"\n'
     assert _find(discontinuities(_tbus(50.0, term=term)), "node b", "segment 1").gamma == \
         pytest.approx(15 / 115, rel=1e-12)
@@ -308,7 +308,7 @@ def test_series_termination_adds_to_the_device_and_the_driver():
 
 
 def test_pin_capacitance_time_constant():
-    # REFERENCES A10 (derived; Bogatin 2009 rule from memory): a 2 pF pin on a matched 50 ohm through line
+    # docs/references.md A10 (derived; Bogatin 2009 rule from memory): a 2 pF pin on a matched 50 ohm through line
     # sees Z0/2 -> tau = 50 ps.  Here node m carries R1 directly (no stub) between two 50 ohm segments;
     # the wave arriving on segment 0 sees segment 1 (50 ohm) and the pin.
     design = budget.loads(_TEE_NO_STUB, source="through.toml")
@@ -375,7 +375,7 @@ def test_bundled_examples_are_passive(name):
 
 
 def test_star_split():
-    # REFERENCES A8: one 50 ohm line into 2 x 50 ohm -> Z 25, Gamma -1/3, T 2/3
+    # docs/references.md A8: one 50 ohm line into 2 x 50 ohm -> Z 25, Gamma -1/3, T 2/3
     text = _TEE_NO_STUB.replace('[[tap]]\nname = "R1"\nnode = "m"\npart = "rx"\n', "") + """
 [[segment]]
 from = "m"
@@ -392,10 +392,10 @@ part = "rx"
 
 
 # ---------------------------------------------------------------------------
-# (c) bounce tables: REFERENCES A4-A7
+# (c) bounce tables: docs/references.md A4-A7
 
 def test_lattice_a4_exact():
-    # REFERENCES A4 (lattice method, Blood 1988 ch. 7; numbers derived): Rs 25, Z0 50, open end, 1 V
+    # docs/references.md A4 (lattice method, Blood 1988 ch. 7; numbers derived): Rs 25, Z0 50, open end, 1 V
     t = bounce_table(25, 50, None, 1, 6, exact=True)
     assert (t.gamma_source, t.gamma_load, t.v_launch, t.v_final) == (F(-1, 3), 1, F(2, 3), 1)
     assert t.at("load") == [F(4, 3), F(8, 9), F(28, 27), F(80, 81), F(244, 243), F(728, 729)]
@@ -404,7 +404,7 @@ def test_lattice_a4_exact():
 
 
 def test_lattice_a5_exact_and_float():
-    # REFERENCES A5: Rs 10, Z0 50, RL 200, 1 V step
+    # docs/references.md A5: Rs 10, Z0 50, RL 200, 1 V step
     t = bounce_table(10, 50, 200, 1, 6, exact=True)
     assert (t.gamma_source, t.gamma_load, t.v_launch, t.v_final) == (F(-2, 3), F(3, 5), F(5, 6), F(20, 21))
     assert t.at("load") == [F(4, 3), F(4, 5), F(76, 75), F(116, 125), F(1804, 1875), F(2964, 3125)]
@@ -414,7 +414,7 @@ def test_lattice_a5_exact_and_float():
 
 
 @pytest.mark.parametrize("zr, expected", [
-    (90, [180, 90, 135, 112.5, 123.75]),   # REFERENCES A6: Stevenson 1982 Example 5.6 (seen secondhand), Zs = 0
+    (90, [180, 90, 135, 112.5, 123.75]),   # docs/references.md A6: Stevenson 1982 Example 5.6 (seen secondhand), Zs = 0
     (10, [60, 90, 105, 112.5, 116.25]),
 ])
 def test_lattice_stevenson_example_5_6(zr, expected):
@@ -423,7 +423,7 @@ def test_lattice_stevenson_example_5_6(zr, expected):
 
 
 def test_lattice_blood_example_2_driver_cuts_off():
-    # REFERENCES A7 (Blood 1988 ch. 7 "Example 2", seen secondhand): V'OH 1.22 V, Ro 5, Z0 50, RL 100 to 0 V.
+    # docs/references.md A7 (Blood 1988 ch. 7 "Example 2", seen secondhand): V'OH 1.22 V, Ro 5, Z0 50, RL 100 to 0 V.
     # The output cuts off (open source); the launched wave is -Idc Z0, Idc = 1.22/(5 + 100) = 11.619 mA.
     idc = 1.22 / 105
     assert idc == pytest.approx(11.6e-3, abs=0.05e-3)                   # printed 11.6 mA
@@ -448,7 +448,7 @@ def test_bounce_table_text():
 @given(rs=st.integers(0, 200), z0=st.integers(10, 150), rl=st.integers(1, 10_000))
 def test_lattice_converges_to_the_dc_divider(rs, z0, rl):
     # DC convergence: the load voltage tends to Vs RL/(Rs + RL), and after k + 1 arrivals it is
-    # exactly V_final (1 - (Gs Gl)^(k+1)) (REFERENCES A4 closed form, exact rationals)
+    # exactly V_final (1 - (Gs Gl)^(k+1)) (docs/references.md A4 closed form, exact rationals)
     t = bounce_table(rs, z0, rl, 1, 12, exact=True)
     final = F(rl, rs + rl)
     assert t.v_final == final
@@ -532,7 +532,7 @@ def test_junction_coefficient_against_the_engine():
     # A matched 50 ohm driver, 10 cm of trunk (0.5 ns), a tee with a 75 ohm, 10 cm open stub and 10 cm more
     # trunk to a matched end.  The wave reflected at the tee comes back to the driver at 1 ns and moves its pin
     # from V1 = 0.5 V to V1 (1 + gamma) (the matched source absorbs it); the echo of the stub's open end
-    # arrives only 1 ns later.  gamma from discontinuities(): -0.25 (REFERENCES A9).  Tolerance 0.5 % of the step
+    # arrives only 1 ns later.  gamma from discontinuities(): -0.25 (docs/references.md A9).  Tolerance 0.5 % of the step
     # (the engine's plateau accuracy, tests/test_closed_forms.py).
     text = _TEE_NO_STUB.replace('rise = "1 ns"\nfall = "1 ns"', 'rise = "10 ps"\nfall = "10 ps"') \
         .replace('[bus]\nname = "through line (test)"', '[bus]\nname = "tee (test)"\ndt = "1 ps"\nt_stop = "3 ns"') \
@@ -566,10 +566,10 @@ def test_cli_bounce(capsys):
 
     assert main(["bounce", "25 ohm", "50", "open", "-n", "2", "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    exact = bounce_table(25, 50, None, 1, 2, exact=True)          # REFERENCES A4
+    exact = bounce_table(25, 50, None, 1, 2, exact=True)          # docs/references.md A4
     assert doc["schema"] == "busbudget.bounce/1"
     assert [r["voltage"] for r in doc["rows"]] == pytest.approx([float(r.voltage) for r in exact.rows], rel=1e-12)
-    assert main(["bounce", "0", "30", "90", "--step", "120 V", "-n", "5"]) == 0     # REFERENCES A6
+    assert main(["bounce", "0", "30", "90", "--step", "120 V", "-n", "5"]) == 0     # docs/references.md A6
     out = capsys.readouterr().out
     loads = [float(ln.split()[-1]) for ln in out.splitlines()[2:] if ln.split()[1] == "load"]
     assert loads == pytest.approx([180, 90, 135, 112.5, 123.75], rel=1e-12)

@@ -1,7 +1,7 @@
 """Cross-sections from geometry (budget.geometry) and the `busbudget line` command.
 
-Check values carry their source beside them; "REFERENCES Bn" is the project's list of
-published check values (see DEVELOPERS.md), quoted together with the original source.
+Check values carry their source beside them; "docs/references.md Bn" is the project's list of
+published check values, quoted together with the original source.
 Oracles: published worked examples, mpmath's elliptic integrals (independent of scipy's),
 scikit-rf's own media (skrf.media.Coaxial, skrf.media.MLine), exact limits.
 """
@@ -25,26 +25,26 @@ from budget.geometry import line
 MM = 1e-3
 MIL = 25.4e-6
 C = 299_792_458.0   # SI definition of c [m/s]
-ETA0 = 376.730313   # REFERENCES preamble: sqrt(mu0/eps0) [ohm]
+ETA0 = 376.730313   # docs/references.md preamble: sqrt(mu0/eps0) [ohm]
 
 
 # ---------------------------------------------------------------------------
-# coax and two-wire: exact TEM forms (REFERENCES B3, B4)
+# coax and two-wire: exact TEM forms (docs/references.md B3, B4)
 
 def test_coax_reference_value():
-    # REFERENCES B3 (Pozar 2012 section 2.2, Table 2.1, from memory; number derived):
+    # docs/references.md B3 (Pozar 2012 section 2.2, Table 2.1, from memory; number derived):
     # D = 2.95 mm, d = 0.81 mm, er = 2.25 -> 51.6653 ohm (exact eta0)
     cs = line("coax", d="0.81 mm", D="2.95 mm", er=2.25)
     assert cs.z0 == pytest.approx(51.6653, abs=5e-5)
     assert cs.er_eff == 2.25
-    # REFERENCES B2: delay sqrt(2.25)/c = 1.5/c exactly (B2 prints 5.003462 ns/m; 1.5/c = 5.0034614 ns/m)
+    # docs/references.md B2: delay sqrt(2.25)/c = 1.5/c exactly (B2 prints 5.003462 ns/m; 1.5/c = 5.0034614 ns/m)
     assert cs.delay == pytest.approx(1.5 / C, rel=1e-12)
     assert cs.delay == pytest.approx(5.003462e-9, abs=1e-15)
 
 
 @pytest.mark.parametrize("er, ratio", [(1.0, 2.302304), (2.25, 3.493365)])
 def test_coax_fifty_ohm_ratios(er, ratio):
-    # REFERENCES B3: 50 ohm needs D/d = 2.302304 (air), 3.493365 (PE, er 2.25) (printed to 7 digits)
+    # docs/references.md B3: 50 ohm needs D/d = 2.302304 (air), 3.493365 (PE, er 2.25) (printed to 7 digits)
     assert line("coax", d=1e-3, D=ratio * 1e-3, er=er).z0 == pytest.approx(50.0, rel=1e-6)
 
 
@@ -60,15 +60,15 @@ def test_coax_against_scikit_rf():
 
 
 @pytest.mark.parametrize("s, d, er, expected", [
-    (1.0e-3, 0.5e-3, 2.0, 111.670),   # REFERENCES B4 (Pozar 2012 Table 2.1, from memory; number derived)
-    (10e-3, 1e-3, 1.0, 358.938),      # REFERENCES B4: s/d = 10, air
+    (1.0e-3, 0.5e-3, 2.0, 111.670),   # docs/references.md B4 (Pozar 2012 Table 2.1, from memory; number derived)
+    (10e-3, 1e-3, 1.0, 358.938),      # docs/references.md B4: s/d = 10, air
 ])
 def test_two_wire_reference_values(s, d, er, expected):
     assert line("two_wire", d=d, s=s, er=er).z0 == pytest.approx(expected, abs=5e-4)
 
 
 def test_two_wire_log_approximation_is_five_percent_high_at_s_over_d_2():
-    # REFERENCES B4: the handbook form 276/sqrt(er) log10(2s/d) gives 117.50 ohm at s/d = 2, er = 2 (5 % high)
+    # docs/references.md B4: the handbook form 276/sqrt(er) log10(2s/d) gives 117.50 ohm at s/d = 2, er = 2 (5 % high)
     approx = 276.0 / math.sqrt(2.0) * math.log10(2 * 2.0)
     exact = line("two_wire", d=0.5e-3, s=1e-3, er=2.0).z0
     assert approx == pytest.approx(117.50, abs=5e-3)
@@ -76,16 +76,16 @@ def test_two_wire_log_approximation_is_five_percent_high_at_s_over_d_2():
 
 
 # ---------------------------------------------------------------------------
-# microstrip: Hammerstad & Jensen 1980 (REFERENCES B5, B6, B7)
+# microstrip: Hammerstad & Jensen 1980 (docs/references.md B5, B6, B7)
 
 @pytest.mark.parametrize("u, er, z0, er_eff", [
-    (1.0, 1.0, 126.4239, 1.0),       # REFERENCES B6: u = 1 air -> Z01 = 126.4239 ohm
-    (1.0, 9.8, 49.2888, 6.5790),     # REFERENCES B6
-    (2.0, 4.4, 48.6858, 3.3439),     # REFERENCES B6
-    (1.5, 4.3, 58.154, 3.1985),      # REFERENCES B6 (also B5's comparison line)
+    (1.0, 1.0, 126.4239, 1.0),       # docs/references.md B6: u = 1 air -> Z01 = 126.4239 ohm
+    (1.0, 9.8, 49.2888, 6.5790),     # docs/references.md B6
+    (2.0, 4.4, 48.6858, 3.3439),     # docs/references.md B6
+    (1.5, 4.3, 58.154, 3.1985),      # docs/references.md B6 (also B5's comparison line)
 ])
 def test_hammerstad_jensen_reference_values(u, er, z0, er_eff):
-    # E. Hammerstad, O. Jensen 1980 (from memory), values recomputed in REFERENCES B6, printed digits
+    # E. Hammerstad, O. Jensen 1980 (from memory), values recomputed in docs/references.md B6, printed digits
     cs = line("microstrip", w=u * 1e-3, h=1e-3, t=0, er=er)
     digits_z = 10 ** -(len(str(z0).split(".")[1])) / 2
     assert cs.z0 == pytest.approx(z0, abs=digits_z)
@@ -94,31 +94,31 @@ def test_hammerstad_jensen_reference_values(u, er, z0, er_eff):
 
 @pytest.mark.parametrize("er, u", [(4.4, 1.9138), (9.8, 0.9711), (4.0, 2.0535)])
 def test_hammerstad_jensen_fifty_ohm_widths(er, u):
-    # REFERENCES B6: 50 ohm solutions of the H&J equations (u printed to 4 decimals -> |dZ/du| * 5e-5)
+    # docs/references.md B6: 50 ohm solutions of the H&J equations (u printed to 4 decimals -> |dZ/du| * 5e-5)
     z_lo = line("microstrip", w=(u - 5e-5) * 1e-3, h=1e-3, t=0, er=er).z0
     z_hi = line("microstrip", w=(u + 5e-5) * 1e-3, h=1e-3, t=0, er=er).z0
     assert z_hi < 50.0 < z_lo
 
 
 def test_pozar_example_3_7():
-    # Pozar 2012, section 3.8, Example 3.7 (REFERENCES B7, from memory, reproduced): d = 0.127 cm,
+    # Pozar 2012, section 3.8, Example 3.7 (docs/references.md B7, from memory, reproduced): d = 0.127 cm,
     # er = 2.20, designed for 50 ohm with W/d = 3.081 (W = 0.391 cm), eps_e = 1.87.  Pozar's formulas are
-    # a different family: REFERENCES B7 expects ~1 % across families (H&J: 50.018 ohm, eps_eff 1.8812).
+    # a different family: docs/references.md B7 expects ~1 % across families (H&J: 50.018 ohm, eps_eff 1.8812).
     cs = line("microstrip", w="0.391 cm", h="0.127 cm", t=0, er=2.20)
     assert cs.z0 == pytest.approx(50.0, rel=0.01)
     assert cs.er_eff == pytest.approx(1.87, rel=0.01)
     exact = line("microstrip", w=3.08117e-3, h=1e-3, t=0, er=2.20)   # B7's recomputed W/d
-    assert exact.z0 == pytest.approx(50.018, abs=5e-4)        # REFERENCES B7 (derived with B6)
+    assert exact.z0 == pytest.approx(50.018, abs=5e-4)        # docs/references.md B7 (derived with B6)
     assert exact.er_eff == pytest.approx(1.8812, abs=5e-5)
 
 
 @pytest.mark.parametrize("w, h, t, er, ipc", [
-    (0.30 * MM, 0.20 * MM, 0.035 * MM, 4.3, 53.5191),   # REFERENCES B5 (IPC-2141, Kaupp 1967; from memory)
-    (8 * MIL, 5 * MIL, 1.4 * MIL, 4.0, 50.2614),        # REFERENCES B5
+    (0.30 * MM, 0.20 * MM, 0.035 * MM, 4.3, 53.5191),   # docs/references.md B5 (IPC-2141, Kaupp 1967; from memory)
+    (8 * MIL, 5 * MIL, 1.4 * MIL, 4.0, 50.2614),        # docs/references.md B5
 ])
 def test_ipc_microstrip_formula_for_contrast(w, h, t, er, ipc):
     # The IPC-2141 simple formula, evaluated here, against itself exactly and against H&J within the
-    # <= 10 % that REFERENCES B5 states between the two families.
+    # <= 10 % that docs/references.md B5 states between the two families.
     own = 87.0 / math.sqrt(er + 1.41) * math.log(5.98 * h / (0.8 * w + t))
     assert own == pytest.approx(ipc, abs=5e-5)
     assert line("microstrip", w=w, h=h, t=t, er=er).z0 == pytest.approx(ipc, rel=0.10)
@@ -153,7 +153,7 @@ def test_microstrip_against_scikit_rf_hammerstad_jensen(w, h, t, er):
 
 @pytest.mark.parametrize("w, h, t, er", [c for c in MLINE_CASES if c[2] == 0.0])
 def test_microstrip_against_scikit_rf_wheeler(w, h, t, er):
-    # A different closed form (Wheeler 1977, in skrf.media.MLine): REFERENCES B6 allows ~0.5 % between
+    # A different closed form (Wheeler 1977, in skrf.media.MLine): docs/references.md B6 allows ~0.5 % between
     # families for Z0; measured here within 0.7 % for Z0 and 2 % for er_eff (zero thickness).
     z_ref, e_ref = _skrf_mline(w, h, t, er, "wheeler")
     cs = line("microstrip", w=w, h=h, t=t, er=er)
@@ -162,7 +162,7 @@ def test_microstrip_against_scikit_rf_wheeler(w, h, t, er):
 
 
 # ---------------------------------------------------------------------------
-# stripline: Cohn 1954 exact, Wheeler 1978 thickness (REFERENCES B8, B9)
+# stripline: Cohn 1954 exact, Wheeler 1978 thickness (docs/references.md B8, B9)
 
 def _cohn_mpmath(w_b, er):
     """Cohn's zero-thickness Z0 with mpmath's elliptic integrals (independent of scipy) [ohm]."""
@@ -174,8 +174,8 @@ def _cohn_mpmath(w_b, er):
 
 
 @pytest.mark.parametrize("w_b, er, expected", [
-    (1.0, 1.0, 65.3536),     # REFERENCES B9 (Cohn 1954, from memory; number derived)
-    (0.5, 1.0, 100.4325),    # REFERENCES B9
+    (1.0, 1.0, 65.3536),     # docs/references.md B9 (Cohn 1954, from memory; number derived)
+    (0.5, 1.0, 100.4325),    # docs/references.md B9
 ])
 def test_cohn_stripline_reference_values(w_b, er, expected):
     cs = line("stripline", w=w_b * 1e-3, b=1e-3, t=0, er=er)
@@ -185,21 +185,21 @@ def test_cohn_stripline_reference_values(w_b, er, expected):
 
 @pytest.mark.parametrize("w_b", [0.01, 0.1, 0.3, 0.82984, 1.0, 3.0, 10.0])
 def test_cohn_stripline_against_mpmath(w_b):
-    # REFERENCES B9 tolerance: exact formula -> rel 1e-9, checked with mpmath (scipy constants and
+    # docs/references.md B9 tolerance: exact formula -> rel 1e-9, checked with mpmath (scipy constants and
     # mpmath's CODATA 2018 mu0/eps0 differ by < 1e-10 relative)
     assert line("stripline", w=w_b, b=1.0, t=0, er=2.2).z0 == pytest.approx(_cohn_mpmath(w_b, 2.2), rel=1e-9)
 
 
 @pytest.mark.parametrize("er, w_b", [(1.0, 1.44239), (2.2, 0.82912), (4.0, 0.50397)])
 def test_cohn_fifty_ohm_widths(er, w_b):
-    # REFERENCES B9: 50 ohm needs these w/b (printed to 5 decimals)
+    # docs/references.md B9: 50 ohm needs these w/b (printed to 5 decimals)
     lo = line("stripline", w=w_b - 5e-6, b=1.0, t=0, er=er).z0
     hi = line("stripline", w=w_b + 5e-6, b=1.0, t=0, er=er).z0
     assert hi < 50.0 < lo
 
 
 def test_pozar_example_3_5():
-    # Pozar 2012 section 3.7, Example 3.5 (REFERENCES B9, from memory, reproduced): b = 0.32 cm, er = 2.20,
+    # Pozar 2012 section 3.7, Example 3.5 (docs/references.md B9, from memory, reproduced): b = 0.32 cm, er = 2.20,
     # 50 ohm -> W = 0.266 cm (his synthesis W/b = 0.82984, ~1 % accurate); Cohn's exact value there 49.972 ohm
     assert line("stripline", w=0.82984 * 0.32e-2, b=0.32e-2, t=0, er=2.2).z0 == pytest.approx(49.972, abs=5e-4)
     assert line("stripline", w="0.266 cm", b="0.32 cm", t=0, er=2.2).z0 == pytest.approx(50.0, rel=0.01)
@@ -214,18 +214,18 @@ def test_wheeler_zero_thickness_agrees_with_cohn(w_b):
 
 
 @pytest.mark.parametrize("w, b, t, er, ipc", [
-    (0.15 * MM, 0.50 * MM, 0.035 * MM, 4.3, 52.4649),   # REFERENCES B8 (IPC-2141, from memory)
-    (5 * MIL, 20 * MIL, 1.4 * MIL, 4.0, 58.5413),       # REFERENCES B8
+    (0.15 * MM, 0.50 * MM, 0.035 * MM, 4.3, 52.4649),   # docs/references.md B8 (IPC-2141, from memory)
+    (5 * MIL, 20 * MIL, 1.4 * MIL, 4.0, 58.5413),       # docs/references.md B8
 ])
 def test_ipc_stripline_formula_for_contrast(w, b, t, er, ipc):
     own = 60.0 / math.sqrt(er) * math.log(4 * b / (0.67 * math.pi * w * (0.8 + t / w)))
     assert own == pytest.approx(ipc, abs=5e-5)
-    # REFERENCES B8: IPC is ~4 % below the exact result at w/b = 0.3; allow 6 % with thickness
+    # docs/references.md B8: IPC is ~4 % below the exact result at w/b = 0.3; allow 6 % with thickness
     assert line("stripline", w=w, b=b, t=t, er=er).z0 == pytest.approx(ipc, rel=0.06)
 
 
 def test_ipc_stripline_is_four_percent_below_cohn_at_w_b_03():
-    # REFERENCES B8: w/b = 0.3, er = 4, t = 0: IPC 62.075 vs exact 64.653 ohm
+    # docs/references.md B8: w/b = 0.3, er = 4, t = 0: IPC 62.075 vs exact 64.653 ohm
     assert line("stripline", w=0.3, b=1.0, t=0, er=4.0).z0 == pytest.approx(64.653, abs=5e-4)
 
 
@@ -264,7 +264,7 @@ def test_coupled_stripline_against_mpmath(w, s):
     # Cohn 1955 exact zero-thickness odd/even form (Pozar 2012 section 7.6, from memory) with mpmath's K
     ze, zo = _cohn55_mpmath(w, s, 1.0, 3.5)
     cs = line("edge_coupled_stripline", w=w, s=s, b=1.0, t=0, er=3.5)
-    assert cs.z_even == pytest.approx(ze, rel=1e-6)   # ETA0 here is the 9-digit REFERENCES value
+    assert cs.z_even == pytest.approx(ze, rel=1e-6)   # ETA0 here is the 9-digit docs/references.md value
     assert cs.z_odd == pytest.approx(zo, rel=1e-6)
     assert cs.z0 == cs.z_odd and cs.z_diff == 2 * cs.z_odd
 
@@ -363,7 +363,7 @@ KIND_SAMPLES = [
 @given(scale=st.floats(min_value=1e-3, max_value=1e3))
 def test_impedance_depends_only_on_shape(kind, dims, scale):
     # Quasi-static TEM: Z0 and er_eff depend on ratios of lengths only (geometric similarity);
-    # delay per length is sqrt(er_eff)/c (REFERENCES B2), the same at every scale.
+    # delay per length is sqrt(er_eff)/c (docs/references.md B2), the same at every scale.
     base = line(kind, **dims)
     scaled = line(kind, **{k: v if k == "er" else v * scale for k, v in dims.items()})
     assert scaled.z0 == pytest.approx(base.z0, rel=1e-9)

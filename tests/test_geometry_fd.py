@@ -33,7 +33,7 @@ def _extrapolated(u, g, er, top=8.0, margin=8.0):
 
 def test_fd_solver_against_cohn_exact_stripline():
     # A strip centred between two planes (top wall at 2h, so b = 2h), air: Cohn 1954 / 1955 exact forms
-    # (REFERENCES B9).  Tolerance 1 %: what the extrapolated grid reaches here (measured below 0.3 %).
+    # (docs/references.md B9).  Tolerance 1 %: what the extrapolated grid reaches here (measured below 0.3 %).
     z, _ = _extrapolated(1.0, None, 1.0, top=1.0, margin=6.0)
     (ze, zo), _ = _extrapolated(1.0, 0.5, 1.0, top=1.0, margin=6.0)
     single = line("stripline", w=1.0, b=2.0, t=0.0, er=1.0).z0

@@ -4,7 +4,7 @@ Every waveform here is piecewise linear with its corners on samples, so the
 kernel's linear interpolation is exact and every crossing time can be
 computed on paper: a segment from (t0, v0) to (t1, v1) reaches level L at
 t0 + (L - v0)/(v1 - v0) (t1 - t0).  The metric definitions are the contract
-of DESIGN.md section 3 (ringback and margin measured after the first peak past
+of docs/metrics.md (ringback and margin measured after the first peak past
 the valid threshold, as budget/kernels/metrics.py documents).
 
 Unless a test says otherwise: V_lo = 0 V, V_hi = 3 V (swing 3 V), VIL = 0.8 V,
@@ -249,7 +249,7 @@ def test_violation_bits_each_rule():
 
 def test_ideal_ramp_timing_reference():
     # No reference load: the open-circuit ramp 0 -> 3.3 V over 1.25 ns (a 1 ns
-    # 10-90 % edge / 0.8, REFERENCES D3) crosses 1.65 V half way.
+    # 10-90 % edge / 0.8, docs/references.md D3) crosses 1.65 V half way.
     out = np.empty(1)
     one = lambda x: np.array([float(x)])  # noqa: E731
     mk.ref_times(one(1.25e-9), one(0), one(20), one(3.3), one(20), False, one(1), one(0), one(0),

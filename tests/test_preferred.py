@@ -1,4 +1,4 @@
-"""IEC 60063 preferred values (budget.preferred), against the published lists (REFERENCES F1-F3)."""
+"""IEC 60063 preferred values (budget.preferred), against the published lists (docs/references.md F1-F3)."""
 from __future__ import annotations
 
 import math
@@ -10,10 +10,10 @@ from hypothesis import strategies as st
 from budget import preferred
 from budget.errors import ArgumentError
 
-# REFERENCES F1 (IEC 60063:2015, list seen secondhand): the complete E24 decade
+# docs/references.md F1 (IEC 60063:2015, list seen secondhand): the complete E24 decade
 E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5,
        8.2, 9.1)
-# REFERENCES F2 (IEC 60063:2015, seen secondhand): the complete E96 decade, x 1/100
+# docs/references.md F2 (IEC 60063:2015, seen secondhand): the complete E96 decade, x 1/100
 E96 = tuple(v / 100 for v in (
     100, 102, 105, 107, 110, 113, 115, 118, 121, 124, 127, 130, 133, 137, 140, 143, 147, 150, 154, 158, 162, 165, 169,
     174, 178, 182, 187, 191, 196, 200, 205, 210, 215, 221, 226, 232, 237, 243, 249, 255, 261, 267, 274, 280, 287, 294,
@@ -30,7 +30,7 @@ def test_e24_e12_e6_lists():
 
 
 def test_e24_uses_the_table_not_the_formula():
-    # REFERENCES F1: round(10**(i/24), 2 s.f.) gives 2.6 2.9 3.2 3.5 3.8 4.2 4.6 8.3 where E24 has
+    # docs/references.md F1: round(10**(i/24), 2 s.f.) gives 2.6 2.9 3.2 3.5 3.8 4.2 4.6 8.3 where E24 has
     # 2.7 3.0 3.3 3.6 3.9 4.3 4.7 8.2 (8 values)
     formula = tuple(round(10 ** (i / 24), 1) for i in range(24))
     differ = [(f, e) for f, e in zip(formula, E24) if f != e]
@@ -44,7 +44,7 @@ def test_e96_e48_lists():
 
 
 def test_e192_has_920_where_the_formula_gives_919():
-    # REFERENCES F2: E48 and E96 equal round(100 x 10**(i/n)); E192's one exception is i = 185: 920 (formula 919)
+    # docs/references.md F2: E48 and E96 equal round(100 x 10**(i/n)); E192's one exception is i = 185: 920 (formula 919)
     e192 = preferred.decade("E192")
     assert len(e192) == 192
     assert e192[185] == 9.20 and round(100 * 10 ** (185 / 192)) == 919
@@ -54,7 +54,7 @@ def test_e192_has_920_where_the_formula_gives_919():
 
 
 def test_step_ratios():
-    # REFERENCES F2: E24 steps 1.0667-1.1538 (ideal 1.10069), E96 1.0177-1.0301 (ideal 1.02428)
+    # docs/references.md F2: E24 steps 1.0667-1.1538 (ideal 1.10069), E96 1.0177-1.0301 (ideal 1.02428)
     for series, decade_, lo, hi in (("E24", E24, 1.0667, 1.1538), ("E96", E96, 1.0177, 1.0301)):
         vals = list(decade_) + [10.0]
         ratios = [b / a for a, b in zip(vals, vals[1:])]
@@ -62,7 +62,7 @@ def test_step_ratios():
 
 
 @pytest.mark.parametrize("value, series, expected", [
-    (54, "E24", 56), (54, "E96", 53.6),     # REFERENCES F3 (common practice; arithmetic derived)
+    (54, "E24", 56), (54, "E96", 53.6),     # docs/references.md F3 (common practice; arithmetic derived)
     (60, "E24", 62), (60, "E96", 60.4),
     (120, "E24", 120), (120, "E96", 121),   # 120 is not an E96 value
     (65, "E24", 68), (65, "E96", 64.9),
@@ -83,7 +83,7 @@ def test_nearest_is_in_ratio_not_linear():
 
 
 def test_thevenin_pick_from_f3():
-    # REFERENCES F3: E24 110/91 ohm -> 49.8010 ohm parallel, Vtt = 3.3 x 91/201 = 1.49403 V
+    # docs/references.md F3: E24 110/91 ohm -> 49.8010 ohm parallel, Vtt = 3.3 x 91/201 = 1.49403 V
     r1, r2 = preferred.nearest(110.0, "E24"), preferred.nearest(91.667, "E24")
     assert r1 * r2 / (r1 + r2) == pytest.approx(49.8010, abs=5e-5)
     assert 3.3 * r2 / (r1 + r2) == pytest.approx(1.49403, abs=5e-6)

@@ -287,7 +287,7 @@ part = "p"
 def driver_energy(design, w):
     """Energy [J] delivered since t = 0 into the bus at the driver's die node, per sample.
 
-    The driver is the Norton blend of the DESIGN.md contract: with s(t) = min(t/t_ramp, 1),
+    The driver is the Norton blend of docs/design-file.md (parts): with s(t) = min(t/t_ramp, 1),
     G(t) = (1-s)/r0 + s/r1 and I(t) = (1-s) v0/r0 + s v1/r1; it injects
     i(t) = I(t) - G(t) v(t) into the die node.  Everything else (lines, R, L, C,
     terminations) is a linear time-invariant passive network with constant sources,

@@ -1,6 +1,6 @@
 """Engine pin waveforms against the independent scikit-rf frequency-domain reference.
 
-Accuracy target (DESIGN.md section 2): for every tap and both edges, the max
+Accuracy target (docs/metrics.md): for every tap and both edges, the max
 abs error is <= 1 % of that tap's swing |v_end - v_start|, and the 50 %
 crossing time is within 2 % of the 10-90 % rise (or fall) time.  The
 reference (tests/skrf_reference.py) solves the same circuit exactly in the
@@ -26,8 +26,8 @@ from skrf_reference import SETTLE_TOL, line_y, reference_waveforms
 
 from conftest import accuracy_record
 
-MAX_ERR_OF_SWING = 0.01        # DESIGN.md section 2 accuracy target [-]
-MAX_CROSSING_OF_RISE = 0.02    # DESIGN.md section 2 accuracy target [-]
+MAX_ERR_OF_SWING = 0.01        # docs/metrics.md accuracy target [-]
+MAX_CROSSING_OF_RISE = 0.02    # docs/metrics.md accuracy target [-]
 MAX_REF_TRUNCATION = 1e-3      # the reference's own error budget, a tenth of the target [-]
 
 # (i) stubs of 1.2-1.5 mm (about 8-9 ps) under a 1 ns / 0.7 ns edge: the automatic step
@@ -498,7 +498,7 @@ def test_reference_refuses_a_time_varying_driver():
 
 
 def test_reference_reproduces_lattice_a5():
-    """The reference itself against REFERENCES A5 (lattice, Rs = 10, Z0 = 50, RL = 200, 1 V).
+    """The reference itself against docs/references.md A5 (lattice, Rs = 10, Z0 = 50, RL = 200, 1 V).
 
     Load plateaus 4/3, 4/5, 76/75, 116/125 at t = 1, 3, 5, 7 TD; source end
     5/6, 1, 14/15 at 0, 2, 4 TD (exact rationals, derived from the lattice
@@ -559,7 +559,7 @@ v = "0 V"
         worst = max(worst, np.max(np.abs(mid("END", (2 * k + 1) * td, (2 * k + 3) * td) - v)))
     for k, v in enumerate([5 / 6, 1.0, 14 / 15]):
         worst = max(worst, np.max(np.abs(mid("SRC", 2 * k * td, (2 * k + 2) * td) - v)))
-    accuracy_record(f"skrf reference itself vs REFERENCES A5 lattice: worst plateau error {100 * worst:.4f} % of step")
+    accuracy_record(f"skrf reference itself vs docs/references.md A5 lattice: worst plateau error {100 * worst:.4f} % of step")
     assert worst < 0.002
 
 

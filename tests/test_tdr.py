@@ -22,7 +22,7 @@ DELAY = 6.7e-9                # delay per length of the test lines [s/m]
 
 # -- the textbook single-reflection formula --------------------------------------------
 
-# REFERENCES A1: Gamma = (ZL - Z0)/(ZL + Z0); W. R. Blood Jr., MECL System Design Handbook,
+# docs/references.md A1: Gamma = (ZL - Z0)/(ZL + Z0); W. R. Blood Jr., MECL System Design Handbook,
 # 4th ed., Motorola HB205, 1988, ch. 7 (seen, secondhand: ZL = 65, Z0 = 50 -> "+0.13");
 # D. M. Pozar, Microwave Engineering, 4th ed., Wiley 2012, sec. 2.3 (from memory).
 TEXTBOOK = [(65.0, 50.0, 15 / 115), (100.0, 50.0, 1 / 3), (100.0, 25.0, 0.6), (5.0, 50.0, -45 / 55),

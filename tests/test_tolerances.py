@@ -57,7 +57,7 @@ crosstalk = "200 mV"
 # ---------------------------------------------------------------------------
 # Wilson score interval
 
-# REFERENCES G1 (Newcombe 1998 examples, printed to 4 dp; Wilson 1927)
+# docs/references.md G1 (Newcombe 1998 examples, printed to 4 dp; Wilson 1927)
 NEWCOMBE = [(81, 263, 0.2553, 0.3662), (15, 148, 0.0624, 0.1605), (0, 20, 0.0, 0.1611), (1, 29, 0.0061, 0.1718)]
 
 
@@ -76,7 +76,7 @@ def test_wilson_interval_matches_scipy(k, n):
 
 
 def test_wilson_upper_limit_at_zero_failures():
-    # REFERENCES G1: for k = 0 the upper limit is z^2/(n + z^2), z = 1.959963985
+    # docs/references.md G1: for k = 0 the upper limit is z^2/(n + z^2), z = 1.959963985
     z = 1.959963985
     assert wilson_interval(0, 300)[1] == pytest.approx(z * z / (300 + z * z), rel=1e-9)
 
