@@ -55,7 +55,7 @@ _BASES = {
     "meter": (("m", "meter", "metre", "meters", "metres"), ("m", "meter", "metre", "meters", "metres")),
 }
 # units that take no prefix (board dimensions are often given in mil and inch)
-_PLAIN = {"mil": "mil", "mils": "mil", "inch": "inch", "inches": "inch", "in": "inch", "ft": "foot",
+_PLAIN = {"mil": "thou", "mils": "thou", "inch": "inch", "inches": "inch", "in": "inch", "ft": "foot",
           "foot": "foot", "feet": "foot", "%": "percent", "percent": "percent"}
 # SI prefixes people use on bus values (no peta/exa: "PF" means pF).  Keys are exact spellings.
 _PREFIXES = {"f": "femto", "p": "pico", "n": "nano", "u": "micro", "\u00b5": "micro", "\u03bc": "micro",
