@@ -68,10 +68,14 @@ def bus_texts(draw, *, grounded=True, lossy=True):
             p.append(f"v_low = {_f(v_low)}\nv_high = {_f(levels[i][1])}\n"
                      f"r_high = {_f(draw(fl(5, 60)))}\nr_low = {_f(draw(fl(5, 60)))}\n")
             can_drive.append(f"T{i}")
-        # thresholds at 30 % / 70 % of the first transceiver's swing (and of each transceiver's own),
-        # so every receiver can see both levels (levels the bus cannot reach are refused at load)
+        # thresholds 2.0 V / 0.8 V where the first transceiver's levels (and a transceiver's own) straddle
+        # them, else at 70 % / 30 % of that swing: every receiver can see both levels (thresholds the
+        # bus cannot reach are refused at load)
         lo, hi = levels.get(i, levels[0])
-        p.append(f"vih = {_f(lo + 0.7 * (hi - lo))}\nvil = {_f(lo + 0.3 * (hi - lo))}\n")
+        if lo < 0.8 and hi > 2.0:
+            p.append('vih = "2.0 V"\nvil = "0.8 V"\n')
+        else:
+            p.append(f"vih = {_f(lo + 0.7 * (hi - lo))}\nvil = {_f(lo + 0.3 * (hi - lo))}\n")
         if draw(st.booleans()):
             p.append(f"l_pkg = {_f(draw(fl(0.3e-9, 3e-9)))}\n")
         if grounded and draw(st.booleans()):
