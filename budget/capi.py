@@ -175,16 +175,21 @@ def _known_path(design: Design, path: str) -> None:
                                         f"known paths include: {hint}")
 
 
-def set_value(handle: int, path: str, value: float) -> None:
-    """Replace the value at dotted ``path`` by ``value`` [SI]; re-validates the design."""
+def set_value(handle: int, path: str, value: float | str) -> None:
+    """Replace the value at dotted ``path`` by ``value`` ([SI] float, or a unit string "37 ohm").
+
+    Goes through :meth:`Design.with_values`: the same unit, sign, plausibility
+    and cross-checks as the Python API (3.1 for a c_pin is refused, with the hint
+    "did you mean 3.1 pF?").
+    """
     slot = _slot(handle)
     with slot.lock:
         design = slot.design
         _known_path(design, path)
-        if not math.isfinite(value):
+        if not isinstance(value, str) and not math.isfinite(value):
             raise CallFailed("BB_ERR_VALUE", f"{design.source}: {path} = {value!r} is not a finite number")
         try:
-            new = design.with_values({path: float(value)})
+            new = design.with_values({path: value if isinstance(value, str) else float(value)})
         except DesignError as exc:
             raise CallFailed("BB_ERR_VALUE", str(exc)) from None
         slot.design, slot.result, slot.waves = new, None, {}
@@ -493,6 +498,13 @@ def bind(ffi, lib) -> None:
     def bb_set(design, path, value):
         p = text_arg("path", path)
         set_value(design, p, float(value))
+        return "BB_OK"
+
+    @export
+    def bb_set_text(design, path, value):
+        p = text_arg("path", path)
+        v = text_arg("value", value)
+        set_value(design, p, v)
         return "BB_OK"
 
     @export

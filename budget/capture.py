@@ -234,7 +234,7 @@ def _scale(unit: str, dim: str, src, line, column) -> float:
     try:
         return parse_quantity(f"1 {unit.replace('μ', 'µ')}", dim)
     except DesignError:
-        from .units import _parse_string
+        from .units import _registry
 
         other = _scale_or_none(unit)
         what = "the time column" if dim == "time" else "a channel"
@@ -242,8 +242,12 @@ def _scale(unit: str, dim: str, src, line, column) -> float:
         if other is not None:
             raise CaptureError(f"unit {unit!r} is a {other[0]}, but {what} must be in {need}",
                                source=src, line=line, column=column) from None
+        # a unit that is neither a time nor a voltage: known to pint (A, W...) or not at all;
+        # only a short single word reaches pint, so no expression is ever evaluated
         try:
-            _parse_string(f"1 {unit}")
+            if len(unit) > 16 or not unit.replace("µ", "u").isalpha():
+                raise ValueError(unit)
+            _registry().Unit(unit)
         except Exception:  # pint raises several unrelated types
             raise CaptureError(f"unknown unit {unit!r}", source=src, line=line, column=column) from None
         raise CaptureError(f"unit {unit!r}: {what} must be in {need}", source=src, line=line,

@@ -1,14 +1,31 @@
-"""Parsing of physical quantities from design files.
+"""Physical quantities from text: "50 ohm", "6.7 ns/m", "1.8 pF", "10%".
 
-Quantities are written as strings with SI units ("50 ohm", "6.7 ns/m", "10%")
-or as plain numbers already in SI base units.  Units are parsed by `pint`
-(a well-kept units library); this module only checks the dimension and
-returns a float in SI base units.
+A quantity is a number and an optional unit, or a plain number already in SI
+base units.  The text is read in two steps:
+
+1. this module checks the *shape* of the text itself (one decimal number, then
+   at most a unit over a unit; at most :data:`MAX_TEXT` characters), so hostile
+   text (``"9**9**9 ohm"``, expressions, megabytes of digits) is refused at once
+   instead of being handed to an expression evaluator;
+2. each unit word is matched to a known unit, case-insensitively where the case
+   cannot change the meaning (pF = pf = PF, ohm = Ohm = OHM = Ω, ns = NS,
+   kohm = kOhm), and the canonical spelling is converted by `pint` (a well-kept
+   units library), which also checks the dimension.
+
+The one letter whose case carries meaning is m/M (milli / mega).  Its case is
+trusted when the unit after it is written in its usual case ("mV", "MOhm",
+"Mohm", "mohm", "ms", "mm"): whoever wrote it minded the case.  When the rest of
+the unit is in an unusual case ("MOHM", "mv", "MS", "MM") both readings are
+possible, so the value is refused with a message listing the two.
+
+Every error is a :class:`~budget.errors.DesignError` naming file, table and key
+(or the parameter path); no raw message of the units library is shown.
 """
 from __future__ import annotations
 
 import functools
 import math
+import re
 
 from .errors import DesignError
 
@@ -25,23 +42,104 @@ DIMENSIONS = {
     "dimensionless": ("dimensionless", "1"),
 }
 
+MAX_TEXT = 64          # characters; "1.23456789e-12 ohm/m" needs 20
+
+# SI base units of this domain: accepted spellings (compared in lower case) -> pint name,
+# and the spellings whose case is the usual one (these make an m/M prefix trustworthy).
+_BASES = {
+    "ohm": (("ohm", "ohms", "\u03a9", "\u2126"), ("ohm", "Ohm", "ohms", "Ohms", "\u03a9", "\u2126")),
+    "volt": (("v", "volt", "volts"), ("V", "volt", "volts")),
+    "farad": (("f", "farad", "farads"), ("F", "farad", "farads")),
+    "henry": (("h", "henry", "henrys", "henries"), ("H", "henry", "henrys", "henries")),
+    "second": (("s", "sec", "second", "seconds"), ("s", "sec", "second", "seconds")),
+    "meter": (("m", "meter", "metre", "meters", "metres"), ("m", "meter", "metre", "meters", "metres")),
+}
+# units that take no prefix (board dimensions are often given in mil and inch)
+_PLAIN = {"mil": "thou", "mils": "thou", "inch": "inch", "inches": "inch", "in": "inch", "ft": "foot",
+          "foot": "foot", "feet": "foot", "%": "percent", "percent": "percent"}
+# SI prefixes people use on bus values (no peta/exa: "PF" means pF).  Keys are exact spellings.
+_PREFIXES = {"f": "femto", "p": "pico", "n": "nano", "u": "micro", "\u00b5": "micro", "\u03bc": "micro",
+             "m": "milli", "c": "centi", "k": "kilo", "M": "mega", "G": "giga",
+             "femto": "femto", "pico": "pico", "nano": "nano", "micro": "micro", "milli": "milli",
+             "centi": "centi", "kilo": "kilo", "mega": "mega", "giga": "giga"}
+_PREFIX_SYMBOL = {"femto": "f", "pico": "p", "nano": "n", "micro": "u", "milli": "m", "centi": "c",
+                  "kilo": "k", "mega": "M", "giga": "G"}
+_SYMBOL = {"ohm": "ohm", "volt": "V", "farad": "F", "henry": "H", "second": "s", "meter": "m"}
+
+_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_WORD = r"[A-Za-z\u00b5\u03bc\u03a9\u2126%]+"
+_QUANTITY = re.compile(rf"\s*({_NUMBER})\s*(?:({_WORD})\s*(?:/\s*({_WORD}))?)?\s*")
+
+KNOWN_UNITS = "ohm, V, F, H, s, m (with the prefixes f p n u m c k M G), mil, inch, ft, %"
+
+
+class UnitTextError(ValueError):
+    """The text of a quantity is malformed; the message is meant for the user."""
+
+
+def _resolve(word: str) -> tuple[str, float | None]:
+    """pint spelling of one unit word, and the SI value of a refused ambiguous reading (None)."""
+    low = word.lower()
+    if low in _PLAIN:
+        return _PLAIN[low], None
+    for base, (spellings, usual) in _BASES.items():
+        for spelling in sorted(spellings, key=len, reverse=True):
+            if not low.endswith(spelling.lower()):
+                continue
+            pre_text, base_text = word[:len(word) - len(spelling)], word[len(word) - len(spelling):]
+            if not pre_text:
+                return base, None
+            prefix = _PREFIXES.get(pre_text) or _PREFIXES.get(pre_text.lower())
+            if prefix is None and len(pre_text) == 1 and pre_text.lower() == "g":
+                prefix = "giga"
+            if prefix is None and pre_text == "K":
+                prefix = "kilo"
+            if prefix is None:
+                continue
+            if pre_text in ("m", "M") and base_text not in usual:
+                raise UnitTextError(
+                    f"the unit {word!r} is ambiguous: {pre_text!r} reads as milli or mega because the rest of "
+                    f"the unit is not in its usual case; write m{_SYMBOL[base]} (milli{base}) or "
+                    f"M{_SYMBOL[base]} (mega{base})")
+            return prefix + base, None
+    raise UnitTextError(f"unknown unit {word!r}; known units: {KNOWN_UNITS}")
+
 
 @functools.lru_cache(maxsize=1)
 def _registry():
-    # pint takes ~0.5 s to build its registry: do it only when a string needs it.
+    # pint takes ~0.5 s to build its registry: do it only when a unit needs it.
     import pint
 
     return pint.UnitRegistry()
 
 
 @functools.lru_cache(maxsize=4096)
-def _parse_string(text: str):
-    ureg = _registry()
-    q = ureg.Quantity(text.strip())
-    q = q.to_base_units()
-    return float(q.magnitude), str(q.dimensionality)
+def _parse_string(text: str) -> tuple[float, str, bool]:
+    """(SI magnitude, pint dimensionality, has a unit) of quantity text; raises UnitTextError."""
+    if len(text) > MAX_TEXT:
+        raise UnitTextError(f"quantity text of {len(text)} characters (at most {MAX_TEXT})")
+    m = _QUANTITY.fullmatch(text)
+    if m is None:
+        raise UnitTextError("expected a number and a unit, like \"50 ohm\" or \"1.2 ns\" "
+                            "(no expressions or powers)")
+    number, num_unit, den_unit = m.groups()
+    value = float(number)
+    if not math.isfinite(value):
+        raise UnitTextError("the number is too large")
+    if num_unit is None:
+        return value, "dimensionless", False
+    unit = _resolve(num_unit)[0]
+    if den_unit is not None:
+        unit = f"{unit} / {_resolve(den_unit)[0]}"
+    try:
+        q = _registry().Quantity(value, unit).to_base_units()
+        out = float(q.magnitude)
+    except Exception:  # pint raises several unrelated types; the text was already checked
+        raise UnitTextError(f"cannot convert the unit {unit!r}") from None
+    return out, str(q.dimensionality), True
 
 
+@functools.lru_cache(maxsize=None)
 def _dimensionality(name: str) -> str:
     ureg = _registry()
     spec = DIMENSIONS[name][0]
@@ -65,20 +163,29 @@ def parse_quantity(value, dimension: str, *, source="<design>", table=None, key=
     Raises
     ------
     DesignError
-        Unparseable text, wrong dimension, or a non-finite number.
+        Malformed text, an unknown or ambiguous unit, the wrong dimension, or a
+        non-finite number.
     """
     unit = DIMENSIONS[dimension][1]
     if isinstance(value, bool):
         raise DesignError(f"expected a quantity in {unit}, got a boolean", source=source, table=table, key=key)
     if isinstance(value, (int, float)):
-        out = float(value)
-    elif isinstance(value, str):
         try:
-            out, dim = _parse_string(value)
-        except Exception as exc:  # pint raises several unrelated types
-            raise DesignError(f"cannot read {value!r} as a quantity ({type(exc).__name__}: {exc})",
+            out = float(value)
+        except OverflowError:
+            raise DesignError(f"the number is too large for a quantity in {unit}",
                               source=source, table=table, key=key) from None
+    elif isinstance(value, str):
+        shown = value if len(value) <= MAX_TEXT else value[:MAX_TEXT] + "..."
+        try:
+            out, dim, has_unit = _parse_string(value)
+        except UnitTextError as exc:
+            raise DesignError(f"cannot read {shown!r} as a quantity: {exc}", source=source, table=table,
+                              key=key) from None
         if dim != _dimensionality(dimension):
+            if not has_unit:
+                raise DesignError(f"{value!r} has no unit; write it with one (e.g. \"{value.strip()} {unit}\") "
+                                  f"or as a plain number in {unit}", source=source, table=table, key=key)
             raise DesignError(f"{value!r} is not a {dimension.replace('_', ' ')} (expected units of {unit})",
                               source=source, table=table, key=key)
     else:
@@ -91,4 +198,19 @@ def parse_quantity(value, dimension: str, *, source="<design>", table=None, key=
 
 def is_percent(value) -> bool:
     """True if ``value`` is a string written as a percentage ("10%", "5 %", "10 percent")."""
-    return isinstance(value, str) and (value.strip().endswith("%") or value.strip().endswith("percent"))
+    return isinstance(value, str) and (value.strip().endswith("%") or value.strip().lower().endswith("percent"))
+
+
+_SI_PREFIX = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"), (1e-9, "n"),
+              (1e-12, "p"), (1e-15, "f")]
+
+
+def si(value: float, unit: str) -> str:
+    """``value`` [SI] written with an SI prefix on ``unit``: si(1.8e-12, "F") -> "1.8 pF"."""
+    if value == 0 or not math.isfinite(value) or unit in ("", "1"):
+        return f"{value:.4g} {unit}".strip() if unit not in ("1",) else f"{value:.4g}"
+    mag = abs(value)
+    for scale, prefix in _SI_PREFIX:
+        if mag >= scale * 0.9995:
+            return f"{value / scale:.4g} {prefix}{unit}"
+    return f"{value:.4g} {unit}"

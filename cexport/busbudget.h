@@ -185,11 +185,21 @@ int bb_close(bb_handle design);
 /* Replaces one numeric value of the design: path is the dotted design-file
    path ("lines.trunk.z0", "parts.xcvr.r_high", "segment.0.length",
    "tap.U1.stub.length", "termination.0.r"), value is in SI base units
-   ([ohm], [V], [F], [H], [m], [s], [s/m], [ohm/m], [-]).  The whole design is
-   re-validated; on any error it is left unchanged.
+   ([ohm], [V], [F], [H], [m], [s], [s/m], [ohm/m], [-]).  Checked like a value
+   from Python (Design.with_values): sign, plausibility (3.1 for a c_pin is
+   3.1 F and refused, the message suggesting 3.1 pF) and the rules the value
+   takes part in; on any error the design is left unchanged.
    Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_PATH (unknown path),
-   BB_ERR_VALUE (not finite or non-physical, e.g. a negative z0). */
+   BB_ERR_VALUE (not finite, implausible or non-physical, e.g. a negative z0). */
 int bb_set(bb_handle design, const char *path, double value);
+
+/* Like bb_set() with the value as text with its unit ("37 ohm", "1.8 pF",
+   "6.7 ns/m"; UTF-8, NUL-terminated) or a plain number in SI base units.
+   Unit names are case-insensitive where that is unambiguous (pF, pf, PF);
+   "MOHM" or "mv" (milli or mega?) are refused with both readings.
+   Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_PATH, BB_ERR_VALUE
+   (unreadable, wrong unit, ambiguous, implausible or non-physical). */
+int bb_set_text(bb_handle design, const char *path, const char *value);
 
 /* Reads one numeric value (SI base units) into *value.
    Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_PATH. */

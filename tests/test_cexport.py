@@ -203,6 +203,9 @@ def parse_check(stdout: str) -> dict:
         if f[0] == "set":
             out["set"][f[1]] = float(f[2])
             assert int(f[3]) == CONST["BB_OK"]
+        elif f[0] == "settext":        # bb_set_text: the value as text with its unit
+            out["set"][f[1]] = " ".join(f[3:])
+            assert int(f[2]) == CONST["BB_OK"]
         elif f[0] == "check":
             out["check"] = f[1:]
         elif f[0] == "tap":
@@ -225,6 +228,9 @@ CHECK_CASES = [
     # both outside the box (z0 40.5..49.5 ohm, termination 5 % of its nominal): flagged, still evaluated
     pytest.param(SHORT, ["lines.route.z0=55", "termination.0.r=2"], id="short-bus-fail-out-of-box"),
     pytest.param(BACKPLANE, ["lines.backplane.z0=52.5", "tap.SLOT3.stub.length=0.031"], id="backplane"),
+    # bb_set_text: values with units, case-insensitive where unambiguous; Python reads the same text
+    pytest.param(SHORT, ["lines.route.z0=47.5 Ohm", "parts.mem_load.c_pin=2.2 pf", "segment.1.length=25 mm",
+                         "parts.hub_ctrl.r_high=21.5"], id="short-bus-unit-text"),
 ]
 
 
@@ -368,8 +374,15 @@ ERROR_CASES = [
     ("runtime_info_small", "BB_ERR_SIZE", "bytes"),
     ("last_error_small_buffer", "BB_ERR_SIZE", "/"),      # the message, cut to 1 byte
     ("last_error_null", "BB_ERR_NULL", "-"),
-    ("check_non_finite_result", "BB_ERR_SIMULATION", "non-finite"),
-    ("waveform_non_finite_result", "BB_ERR_SIMULATION", "non-finite"),
+    ("set_implausible_c_pin", "BB_ERR_VALUE", "did you mean 3.1 pF?"),
+    ("set_huge_c_pin", "BB_ERR_VALUE", "not a plausible pin capacitance"),
+    ("set_text_null_path", "BB_ERR_NULL", "path"),
+    ("set_text_null_value", "BB_ERR_NULL", "value"),
+    ("set_text_unknown_path", "BB_ERR_PATH", "lines.route.zz"),
+    ("set_text_wrong_unit", "BB_ERR_VALUE", "resistance"),
+    ("set_text_ambiguous_unit", "BB_ERR_VALUE", "milli"),
+    ("set_text_expression", "BB_ERR_VALUE", "no expressions"),
+    ("set_text_implausible", "BB_ERR_VALUE", "did you mean 2 nH?"),
     ("success_keeps_message", "BB_OK", "z0: must be positive"),
 ]
 
@@ -393,8 +406,11 @@ def test_error_table_covers_every_case_and_code(error_run):
     _, cases = error_run
     assert set(cases) == {name for name, _, _ in ERROR_CASES}
     codes = {code for _, code, _ in ERROR_CASES}
-    # BB_ERR_INTERNAL means a bug, so no input can provoke it: see test_unexpected_exceptions_are_internal
-    assert {n for n in capi.STATUS_NAMES if n.startswith("BB_ERR_")} - codes == {"BB_ERR_INTERNAL"}
+    # BB_ERR_INTERNAL means a bug, so no input can provoke it: see test_unexpected_exceptions_are_internal.
+    # BB_ERR_SIMULATION: the values that broke the numerics (a c_pin of 1e300 F) are now refused as
+    # implausible when set, so no input reaches it from C (status_of still maps SimulationError to it)
+    assert {n for n in capi.STATUS_NAMES if n.startswith("BB_ERR_")} - codes == {"BB_ERR_INTERNAL",
+                                                                                 "BB_ERR_SIMULATION"}
 
 
 @pytest.mark.parametrize("name, code, text", ERROR_CASES, ids=[c[0] for c in ERROR_CASES])

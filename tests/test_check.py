@@ -170,12 +170,13 @@ def test_robust_link_passes_nominally_and_at_every_corner():
 
 
 def test_never_valid_edge_is_a_violation_and_never_nan():
-    # VOH 1.9 V never reaches VIH 2.0 V: the rising edge never becomes valid.
-    report = check(budget.loads(lumped(1.9, 0.4, 20.0, 2.0, 0.8)))
+    # VOH 2.4 V behind 20 ohm into 50 ohm to 0 V settles at 2.4 * 50 / 70 = 1.714 V, below VIH 2.0 V:
+    # the rising edge never becomes valid.  (A driver whose own v_high is below VIH is refused at load.)
+    report = check(budget.loads(lumped(2.4, 0.4, 20.0, 2.0, 0.8, term_r=50.0)))
     rise = report.rows(edge="rise")[0]
     assert rise["t_valid"] is None and rise["flight_max"] is None and rise["ringback"] is None
     assert "never valid" in rise["violations"] and not rise["pass"]
-    assert rise["margin_high"] == pytest.approx(1.9 - 2.0, abs=1e-9)
+    assert rise["margin_high"] == pytest.approx(2.4 * 50 / 70 - 2.0, abs=1e-6)
     assert not report.passed
     text = report.text()
     assert "never" in text and "nan" not in text.lower()
@@ -414,8 +415,8 @@ def test_check_rejects_batched_designs_and_other_objects():
 
 
 def test_margins_never_nan_even_when_nothing_switches():
-    # The driver's swing stays below VIL: no edge at all at the receiver.
-    report = check(budget.loads(lumped(0.6, 0.0, 20.0, 2.0, 0.8)))
+    # 2.4 V behind 20 ohm into 5 ohm to 0 V settles at 0.48 V, below VIL: no edge at all at the receiver.
+    report = check(budget.loads(lumped(2.4, 0.0, 20.0, 2.0, 0.8, term_r=5.0)))
     rise = report.rows(edge="rise")[0]
     assert rise["t_switch"] is None and rise["flight_min"] is None
     assert math.isfinite(rise["margin_high"]) and rise["margin_high"] < 0

@@ -2,8 +2,8 @@
 
 Every check value carries its source beside it.  Set-up common to all cases:
 a fast edge (10-90 % = 10 ps, so the linear ramp lasts 12.5 ps), an explicit
-1 ps time step, lines of one-way delay TD = 1 ns or so (length in metres at
-1 ns/m), ideal probes ("probe" part: c_pin = 0, no r_in, no l_pkg, so the die
+1 ps time step, lines of one-way delay TD = 1 ns or so (10 ns/m, a slow cable,
+so every length given in the cases as "1.0" is 1 ns: 10 cm), ideal probes ("probe" part: c_pin = 0, no r_in, no l_pkg, so the die
 node is the bus node itself).  Plateau values are read over the middle half
 of each plateau (away from the 12.5 ps transitions) and must lie within
 0.5 % of the step of the closed form (TOL_OF_STEP); the worst error of each
@@ -21,7 +21,7 @@ import budget
 from conftest import accuracy_record
 
 TOL_OF_STEP = 0.005   # brief: plateau error below 0.5 % of the step [-]
-TD = 1e-9             # one-way delay of the 1 m lines at 1 ns/m [s]
+TD = 1e-9             # one-way delay of the unit-length lines (10 cm at 10 ns/m) [s]
 RAMP = 12.5e-12       # 0-100 % ramp = 10-90 % time / 0.8 (docs/references.md D3) [s]
 
 
@@ -62,17 +62,18 @@ def line(name, z0):
     return f"""
 [lines.{name}]
 z0 = "{z0!r} ohm"
-delay = "1 ns/m"
+delay = "10 ns/m"
 """
 
 
-def segment(a, b, ln, length_m):
+def segment(a, b, ln, length_ns):
+    """A segment whose one-way delay is length_ns [ns] (10 cm per ns at 10 ns/m)."""
     return f"""
 [[segment]]
 from = "{a}"
 to = "{b}"
 line = "{ln}"
-length = "{length_m!r} m"
+length = "{length_ns / 10!r} m"
 """
 
 
@@ -84,7 +85,7 @@ node = "{node}"
 part = "{part}"
 """
     if stub is not None:
-        s += f'stub = {{ line = "{stub[0]}", length = "{stub[1]!r} m" }}\n'
+        s += f'stub = {{ line = "{stub[0]}", length = "{stub[1] / 10!r} m" }}\n'
     return s
 
 

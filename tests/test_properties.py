@@ -56,7 +56,7 @@ def bus_texts(draw, *, grounded=True, lossy=True):
     for i in range(n - 1):
         out.append(f'[[segment]]\nfrom = "n{i}"\nto = "n{i + 1}"\nline = "trunk"\n'
                    f"length = {_f(draw(fl(0.01, 0.3)))}\n")
-    can_drive = []
+    can_drive, levels = [], {}
     for i in range(n):
         role = "transceiver" if i == 0 or draw(st.booleans()) else "receiver"
         # c_pin 0 (an ideal probe) or 0.5-5 pF: a tiny c_pin behind l_pkg would force a tiny step
@@ -64,10 +64,18 @@ def bus_texts(draw, *, grounded=True, lossy=True):
         p = [f'[parts.p{i}]\nrole = "{role}"\nc_pin = {_f(c_pin)}\n']
         if role == "transceiver":
             v_low = draw(fl(-1.0, 1.0))
-            p.append(f"v_low = {_f(v_low)}\nv_high = {_f(v_low + draw(fl(0.5, 3.5)))}\n"
+            levels[i] = (v_low, v_low + draw(fl(0.5, 3.5)))
+            p.append(f"v_low = {_f(v_low)}\nv_high = {_f(levels[i][1])}\n"
                      f"r_high = {_f(draw(fl(5, 60)))}\nr_low = {_f(draw(fl(5, 60)))}\n")
             can_drive.append(f"T{i}")
-        p.append('vih = "2.0 V"\nvil = "0.8 V"\n')
+        # thresholds 2.0 V / 0.8 V where the first transceiver's levels (and a transceiver's own) straddle
+        # them, else at 70 % / 30 % of that swing: every receiver can see both levels (thresholds the
+        # bus cannot reach are refused at load)
+        lo, hi = levels.get(i, levels[0])
+        if lo < 0.8 and hi > 2.0:
+            p.append('vih = "2.0 V"\nvil = "0.8 V"\n')
+        else:
+            p.append(f"vih = {_f(lo + 0.7 * (hi - lo))}\nvil = {_f(lo + 0.3 * (hi - lo))}\n")
         if draw(st.booleans()):
             p.append(f"l_pkg = {_f(draw(fl(0.3e-9, 3e-9)))}\n")
         if grounded and draw(st.booleans()):
@@ -95,6 +103,16 @@ def bus_texts(draw, *, grounded=True, lossy=True):
     return "\n".join(out), driver
 
 
+def _level_paths(design):
+    """Source voltages and receiver thresholds: moved together, every level stays reachable.
+
+    Thresholds do not enter the waveforms; they move along only so that the
+    changed design stays valid (a threshold the bus cannot reach is refused).
+    """
+    return _source_paths(design) + [f"parts.{n}.{k}" for n, p in design.parts.items() if p.can_receive
+                                    for k in ("vih", "vil")]
+
+
 def _source_paths(design):
     """Dotted paths of every source voltage in ``design`` (driver levels, termination voltages)."""
     paths = []
@@ -119,7 +137,7 @@ edges = st.sampled_from(["rise", "fall"])
 def test_scaling_every_source_scales_every_waveform(bus, edge, k):
     text, driver = bus
     d = budget.loads(text)
-    dk = d.with_values({p: k * d.params[p] for p in _source_paths(d)})
+    dk = d.with_values({p: k * d.params[p] for p in _level_paths(d)})
     w = budget.simulate(d, driver=driver, edge=edge, t_stop=T_WINDOW)
     wk = budget.simulate(dk, driver=driver, edge=edge, t_stop=T_WINDOW)
     scale = max(np.max(np.abs(w.v)), 1e-3)
@@ -134,7 +152,7 @@ def test_shifting_every_source_shifts_every_waveform(bus, edge, c):
     # to ground (c_pin, RC terminations) the same dv/dt.
     text, driver = bus
     d = budget.loads(text)
-    dc_ = d.with_values({p: d.params[p] + c for p in _source_paths(d)})
+    dc_ = d.with_values({p: d.params[p] + c for p in _level_paths(d)})
     w = budget.simulate(d, driver=driver, edge=edge, t_stop=T_WINDOW)
     wc = budget.simulate(dc_, driver=driver, edge=edge, t_stop=T_WINDOW)
     scale = max(np.max(np.abs(w.v)), abs(c), 1.0)

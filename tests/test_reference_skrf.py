@@ -525,12 +525,12 @@ vih = "0.7 V"
 vil = "0.3 V"
 [lines.l50]
 z0 = "50 ohm"
-delay = "1 ns/m"
+delay = "10 ns/m"
 [[segment]]
 from = "a"
 to = "b"
 line = "l50"
-length = "1 m"
+length = "10 cm"
 [[tap]]
 name = "SRC"
 node = "a"

@@ -48,8 +48,16 @@ static int open_and_set(const char *file, int n, char **args, bb_handle *design)
             printf("bad argument %s\n", args[i]);
             return 1;
         }
+        char *end;
         *eq = '\0';
-        value = strtod(eq + 1, NULL);
+        value = strtod(eq + 1, &end);
+        if (*end != '\0') {   /* not a plain number: a value with its unit */
+            status = bb_set_text(*design, args[i], eq + 1);
+            printf("settext %s %d %s\n", args[i], status, eq + 1);
+            if (status != BB_OK)
+                return unexpected("bb_set_text", status);
+            continue;
+        }
         status = bb_set(*design, args[i], value);
         printf("set %s %.17g %d\n", args[i], value, status);
         if (status != BB_OK)
@@ -299,10 +307,16 @@ static int cmd_errors(const char *file, const char *bad_file)
     printf("case last_error_small_buffer %d %s\n", status, small);
     printf("case last_error_null %d -\n", bb_last_error(NULL, 16));
 
-    /* absurd but finite values pass validation and break the numerics */
-    bb_set(h, "parts.mem_load.c_pin", 1e300);
-    report("check_non_finite_result", bb_check(h, &r));
-    report("waveform_non_finite_result", bb_waveform(h, "CTRL", BB_RISE, "MEM1", NULL, NULL, 0, &n_samples));
+    /* absurd but finite values are refused before they reach the numerics */
+    report("set_implausible_c_pin", bb_set(h, "parts.mem_load.c_pin", 3.1));
+    report("set_huge_c_pin", bb_set(h, "parts.mem_load.c_pin", 1e300));
+    report("set_text_null_path", bb_set_text(h, NULL, "40 ohm"));
+    report("set_text_null_value", bb_set_text(h, "lines.route.z0", NULL));
+    report("set_text_unknown_path", bb_set_text(h, "lines.route.zz", "40 ohm"));
+    report("set_text_wrong_unit", bb_set_text(h, "lines.route.z0", "40 pF"));
+    report("set_text_ambiguous_unit", bb_set_text(h, "parts.mem_load.v_max", "3 mv"));
+    report("set_text_expression", bb_set_text(h, "lines.route.z0", "9**9**9 ohm"));
+    report("set_text_implausible", bb_set_text(h, "parts.mem_load.l_pkg", "2 H"));
 
     /* a failed bb_set leaves the design as it was */
     bb_set(h, "parts.mem_load.c_pin", 2e-12);
