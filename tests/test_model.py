@@ -258,7 +258,10 @@ def test_accepted_keys_labels_and_the_loader_uses_them():
                          "parts.ref_load", "lines", "segment", "tap", "tap.stub", "termination.parallel",
                          "termination.thevenin", "termination.rc", "termination.series", "budget"}
     for role in ("driver", "receiver", "transceiver"):
-        assert {"role", "ref_load", "c_pin"} <= keys[f"parts.{role}"]
+        assert {"role", "c_pin"} <= keys[f"parts.{role}"]
+    # a timing reference load belongs to a part that drives
+    assert "ref_load" in keys["parts.driver"] and "ref_load" in keys["parts.transceiver"]
+    assert "ref_load" not in keys["parts.receiver"]
     for typ in ("parallel", "thevenin", "rc", "series"):
         assert "type" in keys[f"termination.{typ}"]
     keys["bus"].add("colour")           # a copy: the loader's schema is untouched
