@@ -65,6 +65,21 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
     Times that never occur (an edge that never becomes valid, a waveform that
     never settles) are NaN.  ``out[MONOTONIC]`` is 1.0 or 0.0.
     """
+    edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 0.0, out)
+
+
+@kernel
+def edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, hysteresis, out):
+    """:func:`edge_metrics` with the fall-back detection widened by ``hysteresis`` [V].
+
+    A fall-back (which opens the ringback window and marks a non-monotonic
+    edge) is a drop of more than 2 % of the swing *plus* ``hysteresis`` below
+    the running maximum.  0 gives the metric contract exactly (simulated
+    waveforms); measured traces pass a multiple of their noise sigma so that
+    noise alone does not open the window on the rising edge
+    (:mod:`budget.judge`).  Every sample still counts in the minimum, so noise
+    lowers the margin, never raises it.
+    """
     n = t.shape[0]
     sgn = 1.0 if rising else -1.0
     if rising:
@@ -78,7 +93,7 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
         x_end = -v_lo
         x_start = -v_hi
     swing = abs(x_end - x_start)
-    fall_back = MONOTONIC_FRACTION * swing
+    fall_back = MONOTONIC_FRACTION * swing + hysteresis
 
     v_peak = -math.inf
     v_trough = math.inf
