@@ -419,7 +419,7 @@ class Judgement:
 
 def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edge: float = 0.0,
                    v_lo: float | None = None, v_hi: float | None = None, source: str = "<arrays>",
-                   hysteresis: float = 0.0, guardband: float = 0.0) -> Judgement:
+                   hysteresis: float = 0.0, guardband: float = 0.0, t_open: float = np.inf) -> Judgement:
     """Judge a captured waveform at ``receiver`` with the metric and violation kernels of the simulation.
 
     Parameters
@@ -443,6 +443,9 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
         Added to the 2 %-of-swing fall-back that opens the ringback window and
         marks a non-monotonic edge (:func:`budget.kernels.metrics.edge_metrics_hyst`);
         0 = the metric contract as in the simulation.
+    t_open : float [s]
+        Latest opening of the ringback window (inf: the fall-back rule alone;
+        :mod:`budget.judge` passes the first peak of a smoothed copy).
     guardband : float [V]
         Measurement uncertainty subtracted from the margin and from the
         headroom to the absolute ratings (v_max - guardband, v_min + guardband).
@@ -496,7 +499,7 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
     if not (np.isfinite(guardband) and guardband >= 0):
         raise ArgumentError(f"guardband must be a finite voltage >= 0, got {guardband!r}")
     mk.edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.budget.settle_band) * swing,
-                         float(alloc), float(hysteresis), out)
+                         float(alloc), float(hysteresis), float(t_open), out)
     out[mk.MARGIN] -= float(guardband)
     v_max = np.inf if part.v_max is None else float(part.v_max) - float(guardband)
     v_min = -np.inf if part.v_min is None else float(part.v_min) + float(guardband)
