@@ -71,6 +71,9 @@ def cmd_examples(args) -> int:
 
     for name in EXAMPLES:
         print(f"example:{name}\t{example_path(name)}")
+    from .examples import captures_dir
+
+    print(f"demo captures, values files and a TDR trace (fictional Wren board):\t{captures_dir()}")
     return EXIT_PASS
 
 
