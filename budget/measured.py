@@ -226,8 +226,14 @@ def resolve(design, entries) -> Measured:
         if e.path not in dims:
             raise ValuesError(f"the design has no numeric value at this path; known paths: "
                               f"{_known_paths(design, e.path)}", source=e.source, line=e.line, path=e.path)
+        raw = e.raw
+        if isinstance(raw, str):
+            try:
+                raw = float(raw)   # a plain number (CSV and --set are text) is in SI base units
+            except ValueError:
+                pass
         try:
-            v = parse_quantity(e.raw, dims[e.path], source=e.source)
+            v = parse_quantity(raw, dims[e.path], source=e.source)
         except DesignError as exc:
             raise ValuesError(exc.reason, source=e.source, line=e.line, path=e.path) from None
         if not math.isfinite(v):  # pragma: no cover (parse_quantity refuses non-finite values)

@@ -1,6 +1,6 @@
 """Regenerate the demo captures of the fictional "Wren" sensor-hub board (see README.md beside this file).
 
-    python -m budget.examples.captures.make        # or: python budget/examples/captures/make.py
+    python budget/examples/captures/make.py [OUTPUT_DIRECTORY]
 
 Every waveform comes from busbudget's own engine (the bundled ``short-bus``
 example, with a unit's values applied), then is made to look like a bench
@@ -62,7 +62,7 @@ def record_grid(rng):
     return -PRE_TRIGGER + DT_SCOPE * np.arange(int(RECORD / DT_SCOPE)) + 3.1e-12
 
 
-def write_0042_rise():
+def write_0042_rise(out):
     import budget
 
     rng = np.random.default_rng(42)
@@ -80,10 +80,10 @@ def write_0042_rise():
              "Time (ns),CH1 (V),CH2 (mV),CH3 (mV)"]
     for i in range(t.size):
         lines.append(f"{t[i] * 1e9:.4f},{ch[0][i]:.4f},{ch[1][i] * 1e3:.1f},{ch[2][i] * 1e3:.1f}")
-    (HERE / "wren_unit0042_rise.csv").write_text("\n".join(lines) + "\n")
+    (out / "wren_unit0042_rise.csv").write_text("\n".join(lines) + "\n")
 
 
-def write_0042_fall():
+def write_0042_fall(out):
     import budget
 
     rng = np.random.default_rng(4242)
@@ -98,10 +98,10 @@ def write_0042_fall():
     for i in range(t.size):
         cells = [f"{t[i]:.6e}"] + [f"{c[i]:.4f}" for c in ch]
         lines.append(";".join(cells).replace(".", ","))
-    (HERE / "wren_unit0042_fall.csv").write_text("\n".join(lines) + "\n")
+    (out / "wren_unit0042_fall.csv").write_text("\n".join(lines) + "\n")
 
 
-def write_0117_rise():
+def write_0117_rise(out):
     import budget
 
     rng = np.random.default_rng(117)
@@ -112,7 +112,7 @@ def write_0117_rise():
     lines = ["Wren sensor-hub board, unit 0117 (fictional), address line A3", "time\tMEM1\tMEM3", "s\tV\tV"]
     for i in range(t.size):
         lines.append(f"{t[i]:.5e}\t{ch[0][i]:.4f}\t{ch[1][i]:.4f}")
-    (HERE / "wren_unit0117_rise.csv").write_text("\n".join(lines) + "\n")
+    (out / "wren_unit0117_rise.csv").write_text("\n".join(lines) + "\n")
 
 
 TDR_SECTIONS = [("launch", 50.0, 0.010), ("trunk_a", 47.5, 0.040), ("neck", 41.0, 0.006), ("trunk_b", 48.5, 0.020)]
@@ -134,7 +134,7 @@ def tdr_design_text():
     return "".join(out)
 
 
-def write_tdr():
+def write_tdr(out):
     import budget
 
     rng = np.random.default_rng(7)
@@ -147,28 +147,34 @@ def write_tdr():
     lines = ["# Fictional TDR export: Wren trunk coupon, 50 ohm source, 250 mV step, 35 ps (10-90 %)",
              "Time (ps),Port (mV)"]
     lines += [f"{t[i] * 1e12:.2f},{v[i] * 1e3:.3f}" for i in range(t.size)]
-    (HERE / "wren_trunk_tdr.csv").write_text("\n".join(lines) + "\n")
+    (out / "wren_trunk_tdr.csv").write_text("\n".join(lines) + "\n")
 
 
-def write_values():
-    (HERE / "wren_unit0042_values.toml").write_text(
+def write_values(out):
+    (out / "wren_unit0042_values.toml").write_text(
         "# Measured values of Wren unit 0042 (fictional): TDR of the trunk, fixture measurement of the\n"
         "# controller's output resistance, the series resistor measured in circuit.\n"
         + "".join(f'"{p}" = "{v}"\n' for p, v in UNIT_0042.items()))
-    (HERE / "wren_unit0117_values.csv").write_text(
+    (out / "wren_unit0117_values.csv").write_text(
         "# Measured values of Wren unit 0117 (fictional)\npath,value\n"
         + "".join(f"{p},{v}\n" for p, v in UNIT_0117.items()))
 
 
-def main():
-    write_values()
-    write_0042_rise()
-    write_0042_fall()
-    write_0117_rise()
-    write_tdr()
-    for p in sorted(HERE.glob("wren_*")):
-        print(f"wrote {p.name} ({p.stat().st_size} bytes)")
+def main(out=HERE, quiet=False):
+    """Write every demo file into the directory ``out`` (default: beside this script)."""
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    write_values(out)
+    write_0042_rise(out)
+    write_0042_fall(out)
+    write_0117_rise(out)
+    write_tdr(out)
+    if not quiet:
+        for p in sorted(out.glob("wren_*")):
+            print(f"wrote {p.name} ({p.stat().st_size} bytes)")
 
 
 if __name__ == "__main__":
-    main()
+    import sys
+
+    main(sys.argv[1] if len(sys.argv) > 1 else HERE)
