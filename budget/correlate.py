@@ -182,7 +182,8 @@ def correlate(design, capture, driver: str, edge: str, *, channels: dict | None 
             if limit is not None:
                 ratio = math.inf if diff is None else (abs(diff) / limit if limit > 0 else
                                                        (0.0 if diff == 0 else math.inf))
-                cand = {"channel": row["channel"], "receiver": tap, "edge": edge, "metric": name,
+                cand = {"channel": row["channel"], "driver": driver, "receiver": tap, "edge": edge, "metric": name,
+                        "value": diff,
                         "measured": a, "predicted": b, "difference": diff, "tolerance": limit,
                         "ratio": None if math.isinf(ratio) else ratio, "within": within}
                 if worst is None or ratio > worst[0]:

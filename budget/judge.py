@@ -289,6 +289,7 @@ def judge_capture(design, capture, driver: str, edge: str, *, channels: dict | N
         The design's simulation for this driver and edge (computed if None).
     """
     from .capture import judge_waveform
+    from .report import si
     from .simulate import simulate
 
     if edge not in ("rise", "fall"):
@@ -310,11 +311,11 @@ def judge_capture(design, capture, driver: str, edge: str, *, channels: dict | N
     if ignored:
         notes.append(f"columns not mapped to a tap, ignored: {', '.join(ignored)}")
     if t_edge is not None:
-        origin = f"--t-edge: the driver's edge starts at {t_edge:.6g} s in the capture"
+        origin = f"--t-edge: the driver's edge starts at {si(t_edge, 's')} in the capture"
     elif drv_col is not None:
         t_edge = driver_edge_time(design, capture, drv_col, driver, edge, sim)
         origin = (f"from the driver channel {drv_col!r}: its middle-level crossing aligned with the simulated "
-                  f"driver pin's; the driver's edge starts at {t_edge:.6g} s in the capture")
+                  f"driver pin's; the driver's edge starts at {si(t_edge, 's')} in the capture")
     else:
         origin = ("not available: no --t-edge and the driver's pin is not captured; flight times are not "
                   "reported")
