@@ -160,3 +160,15 @@ def test_demo_tdr_trace_gives_the_coupon_sections(capsys):
     zs = sorted(s["z"] for s in longest)
     assert zs[0] == pytest.approx(47.5, rel=0.01) and zs[1] == pytest.approx(48.5, rel=0.01)
     assert min(s["z"] for s in segs if s["z"] is not None) < 45.0      # the 41 ohm neck shows
+
+
+def test_judge_lists_measured_values_and_flags_out_of_box(capsys):
+    rc, cap = run(capsys, ["judge", "example:short-bus", "--capture", demo("wren_unit0042_rise.csv"), "--driver",
+                           "CTRL", "--edge", "rise", *CHANNELS_0042, "--values", demo("wren_unit0042_values.toml"),
+                           "--set", "parts.hub_ctrl.r_high=30 ohm", "--json"])
+    doc = json.loads(cap.out)
+    assert rc == 0
+    assert [m["path"] for m in doc["measured"]] == ["lines.route.z0", "parts.hub_ctrl.r_low", "termination.0.r",
+                                                    "parts.hub_ctrl.r_high"]
+    assert [b["path"] for b in doc["out_of_box"]] == ["parts.hub_ctrl.r_high"]
+    assert any("overrides" in n for n in doc["notes"])

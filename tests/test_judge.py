@@ -319,3 +319,35 @@ def test_judge_is_fast_enough_for_a_production_line():
     took = time.perf_counter() - t0
     print(f"one judge call: {took * 1e3:.1f} ms")
     assert took < 2.0 and math.isfinite(took)
+
+
+# -- properties ---------------------------------------------------------------------
+
+from hypothesis import given, strategies as st  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def fall_setup():
+    d = budget.example("short-bus")
+    w = budget.simulate(d, "CTRL", "fall")
+    t, clean = with_pretrigger(w, ["MEM1", "MEM2", "MEM3"], 3e-9)
+    ref = judge_capture(d, Capture.from_arrays(t, clean), "CTRL", "fall", sim=w, t_edge=0.0)
+    return d, w, t, clean, ref
+
+
+@given(sigma=st.floats(min_value=0.001, max_value=0.04), seed=st.integers(0, 2**32 - 1),
+       shift=st.floats(min_value=-20e-9, max_value=20e-9), offset=st.floats(min_value=-0.05, max_value=0.05))
+def test_noise_only_lowers_margins_and_the_origin_only_moves_times(fall_setup, sigma, seed, shift, offset):
+    """For any noise level (0.04-1.6 % of the swing), seed, trigger shift and probe offset (removed):
+    no margin exceeds the clean one by more than one sigma plus the offset estimate's error, and the
+    time origin given with --t-edge moves the flight times back exactly."""
+    d, w, t, clean, ref = fall_setup
+    rng = np.random.default_rng(seed)
+    noisy = {k: v + offset + rng.normal(0.0, sigma, v.shape) for k, v in clean.items()}
+    rep = judge_capture(d, Capture.from_arrays(t + shift, noisy), "CTRL", "fall", sim=w, t_edge=shift,
+                        remove_offset=True)
+    n_pre = int(2e-9 / w.dt)          # pre-edge samples of the 3 ns pre-trigger (one ramp before the edge)
+    for a, b in zip(rep.results, ref.results):
+        assert margin_of(a) <= margin_of(b) + sigma + 4 * sigma / math.sqrt(n_pre)
+        assert a["offset"] == pytest.approx(offset, abs=5 * sigma / math.sqrt(n_pre) + 1e-12)
+        assert a["flight_min"] == pytest.approx(b["flight_min"], abs=0.1 * 0.8e-9)

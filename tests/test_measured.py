@@ -138,3 +138,24 @@ def test_cli_measured_and_log_errors_exit_2(tmp_path, capsys, args, needle):
     cap = capsys.readouterr()
     assert rc == 2 and needle in cap.err and cap.out == ""
     assert not log.exists()
+
+
+from hypothesis import given, strategies as st  # noqa: E402
+
+PREFIXES = [("", 1.0), ("m", 1e-3), ("k", 1e3)]
+
+
+@given(z=st.floats(min_value=20.0, max_value=120.0), prefix=st.sampled_from(PREFIXES),
+       form=st.sampled_from(["set", "csv", "toml"]))
+def test_any_unit_spelling_gives_the_same_si_value(design, tmp_path_factory, z, prefix, form):
+    """'47.6 ohm', '0.0476 kohm', '47600 mohm' and the plain SI number are one value, whichever way given."""
+    p, scale = prefix
+    text = f"{z / scale!r} {p}ohm"
+    if form == "set":
+        _, m = ms.load_with_values(design, settings=[f"lines.route.z0={text}"])
+    else:
+        d = tmp_path_factory.mktemp("v")
+        path = d / f"v.{form}"
+        path.write_text(f"path,value\nlines.route.z0,{text}\n" if form == "csv" else f'"lines.route.z0" = "{text}"\n')
+        _, m = ms.load_with_values(design, files=[path])
+    assert m.values["lines.route.z0"] == pytest.approx(z, rel=1e-12)
