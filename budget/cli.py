@@ -551,7 +551,7 @@ def build_parser() -> argparse.ArgumentParser:
         "judge", help="judge captured edges by the simulation's metrics against the design's thresholds and budget",
         description="Judge each captured receiver channel by the metrics of the budget (the same kernels as the "
                     "simulation) against the design's thresholds, ratings and budget. Noise: estimated from the "
-                    "pre-edge samples; the raw samples are judged, so noise only lowers a margin. Exit 0 = every "
+                    "pre-edge samples; the raw samples are judged, so noise counts against a margin. Exit 0 = every "
                     "channel passes, 1 = a margin or rating is violated, 2 = bad input (also a capture that misses "
                     "or cuts the edge). Results are estimates: confirm with the part makers' data.")
     _capture_options(jd)
