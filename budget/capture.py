@@ -412,6 +412,9 @@ class Judgement:
     metrics: object
     bits: int
     violations: tuple
+    vector: object = None      # the kernel's metrics vector (after the guardband)
+    headroom: float = float("nan")   # [V] by the one rule (kernels.metrics.headroom_terms)
+    limit: int = 0             # LIMIT_* code of the term that sets the headroom
 
     @property
     def passed(self) -> bool:
@@ -419,7 +422,8 @@ class Judgement:
 
 
 def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edge: float = 0.0,
-                   v_lo: float | None = None, v_hi: float | None = None, source: str = "<arrays>") -> Judgement:
+                   v_lo: float | None = None, v_hi: float | None = None, source: str = "<arrays>",
+                   hysteresis: float = 0.0, guardband: float = 0.0, t_open: float = np.inf) -> Judgement:
     """Judge a captured waveform at ``receiver`` with the metric and violation kernels of the simulation.
 
     Parameters
@@ -439,6 +443,16 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
         DC levels at the pin; default: the design's DC operating points.
     source : str
         Name of the capture in error messages.
+    hysteresis : float [V]
+        Added to the 2 %-of-swing fall-back that opens the ringback window and
+        marks a non-monotonic edge (:func:`budget.kernels.metrics.edge_metrics_hyst`);
+        0 = the metric contract as in the simulation.
+    t_open : float [s]
+        Latest opening of the ringback window (inf: the fall-back rule alone;
+        :mod:`budget.judge` passes the first peak of a smoothed copy).
+    guardband : float [V]
+        Measurement uncertainty subtracted from the margin and from the
+        headroom to the absolute ratings (v_max - guardband, v_min + guardband).
 
     The capture must start before the edge (its first sample on the starting side
     of the entry threshold), else CaptureError: a window that cuts the edge is never
@@ -484,10 +498,18 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
         sum(x for x, unit in design.budget.allocations.values() if unit == "swing") * swing
     t_ref = float(t_ref_of(design, driver, edge, 1)[0]) + float(t_edge)
     out = np.empty(mk.N_METRICS)
-    mk.edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.budget.settle_band) * swing,
-                    float(alloc), out)
-    v_max = np.inf if part.v_max is None else float(part.v_max)
-    v_min = -np.inf if part.v_min is None else float(part.v_min)
-    bits = int(mk.violation_bits(out, v_max, v_min, float(design.budget.min_margin)))
+    if not (np.isfinite(hysteresis) and hysteresis >= 0):
+        raise ArgumentError(f"hysteresis must be a finite voltage >= 0, got {hysteresis!r}")
+    if not (np.isfinite(guardband) and guardband >= 0):
+        raise ArgumentError(f"guardband must be a finite voltage >= 0, got {guardband!r}")
+    mk.edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.budget.settle_band) * swing,
+                         float(alloc), float(hysteresis), float(t_open), out)
+    out[mk.MARGIN] -= float(guardband)
+    v_max = np.inf if part.v_max is None else float(part.v_max) - float(guardband)
+    v_min = -np.inf if part.v_min is None else float(part.v_min) + float(guardband)
+    min_margin = float(design.budget.min_margin)
+    bits = int(mk.violation_bits(out, v_max, v_min, min_margin))
+    head, which = mk.headroom_terms(out, v_max, v_min, min_margin)
     return Judgement(receiver=receiver, driver=driver, edge=edge, v_lo=v_lo, v_hi=v_hi,
-                     metrics=from_vector(out), bits=bits, violations=tuple(mk.violation_list(bits)))
+                     metrics=from_vector(out), bits=bits, violations=tuple(mk.violation_list(bits)),
+                     vector=out, headroom=float(head), limit=int(which))

@@ -47,7 +47,7 @@ def cmd_waves(args) -> int:
 
     from .simulate import simulate
 
-    design = load_design(args.design)
+    design, measured = _measured_design(args)
     w = simulate(design, args.driver, args.edge, dt=args.dt, t_stop=args.t_stop)
 
     def write(fh):
@@ -61,6 +61,7 @@ def cmd_waves(args) -> int:
         write_atomically(args.csv, write)
     for note in w.notes:
         print(f"note: {note}", file=sys.stderr)
+    _print_measured_notes(measured, design)
     return EXIT_PASS
 
 
@@ -70,6 +71,9 @@ def cmd_examples(args) -> int:
 
     for name in EXAMPLES:
         print(f"example:{name}\t{example_path(name)}")
+    from .examples import captures_dir
+
+    print(f"demo captures, values files and a TDR trace (fictional Wren board):\t{captures_dir()}")
     return EXIT_PASS
 
 
@@ -101,12 +105,23 @@ def cmd_check(args) -> int:
     """The budget report (text or JSON); exit 0 pass, 1 fail, 2 bad input, 3 internal error."""
     import json
 
-    design = load_design(args.design)
-    report = _run_check(args, design)
+    _check_log_options(args)
+    design, measured = _measured_design(args)
+    report = _run_check(args, _pinned(design, measured))
+    if measured:
+        from .analyses import out_of_box
+
+        report.out_of_box = out_of_box(design)
+        report.tolerances = {p: [float(lo), float(hi)] for p, (lo, hi) in design.tolerances.items()}
+    doc = report.to_json()
+    if measured:
+        doc["measured"] = measured.to_json(design)
+        doc["measured_note"] = MEASURED_NOTE
     if args.json:
-        body = json.dumps(report.to_json(), indent=2, allow_nan=False) + "\n"
+        body = json.dumps(doc, indent=2, allow_nan=False) + "\n"
     else:
-        body = report.text()
+        body = report.text() + _measured_text(measured, design)
+    _append_record(args, doc, "check", measured)
     if args.out:
         write_atomically(args.out, lambda fh: fh.write(body))
         from .report import volts
@@ -179,6 +194,184 @@ def cmd_tdr(args) -> int:
     else:
         sys.stdout.write(prof.text())
     return EXIT_PASS
+
+
+# ---------------------------------------------------------------------------
+# measured values and records: the options shared by check, waves, judge and correlate
+
+MEASURED_NOTE = ("measured values (--set/--values) replace the nominal ones and are held at their measured value "
+                 "in every tolerance analysis; the values not measured still vary over their tolerance")
+
+
+def _measured_options(parser, *, log: bool = True) -> None:
+    """Add --set/--values (and, with log=True, --log/--serial) to a command's parser."""
+    parser.add_argument("--set", action="append", default=[], metavar="PATH=VALUE", dest="settings",
+                        help="a measured value replacing the nominal one, e.g. lines.trunk.z0=\"52.1 ohm\" "
+                             "(a quantity with units, or an SI number); repeatable; overrides --values")
+    parser.add_argument("--values", action="append", default=[], metavar="FILE", dest="values_files",
+                        help="measured values: TOML (\"lines.trunk.z0\" = \"52.1 ohm\") or CSV with a "
+                             "'path,value' header; repeatable")
+    if log:
+        parser.add_argument("--log", metavar="FILE", default=None,
+                            help="append one run record (busbudget.record/1 JSON line) to FILE; needs --serial")
+        parser.add_argument("--serial", metavar="SN", default=None,
+                            help="serial number of the unit, written in the record; needs --log")
+
+
+def _check_log_options(args) -> None:
+    """--log and --serial go together (exit 2 before any work otherwise)."""
+    log, serial = getattr(args, "log", None), getattr(args, "serial", None)
+    if (log is None) != (serial is None):
+        raise InputError("--log and --serial must be given together" +
+                         (" (--serial is missing)" if serial is None else " (--log is missing)"))
+    if serial is not None and not serial.strip():
+        raise InputError("--serial must not be empty")
+
+
+def _design_path(arg: str):
+    from . import examples
+
+    return examples.example_path(arg.split(":", 1)[1]) if arg.startswith("example:") else Path(arg)
+
+
+def _measured_design(args):
+    """(design with the measured values of --values/--set applied, Measured)."""
+    from .measured import load_with_values
+
+    design = load_design(args.design)
+    return load_with_values(design, settings=getattr(args, "settings", ()) or (),
+                            files=getattr(args, "values_files", ()) or ())
+
+
+def _pinned(design, measured):
+    from .measured import pin
+
+    return pin(design, measured)
+
+
+def _measured_text(measured, design) -> str:
+    if not measured:
+        return ""
+    lines = ["", "Measured values (" + MEASURED_NOTE[len("measured values (--set/--values) "):] + "):"]
+    for m in measured.to_json(design):
+        lines.append(f"  {m['path']} = {m['given']}  ({m['origin']})")
+    for n in measured.notes:
+        lines.append(f"  note: {n}")
+    return "\n".join(lines) + "\n"
+
+
+def _print_measured_notes(measured, design) -> None:
+    from .analyses import out_of_box
+
+    for n in measured.notes:
+        print(f"note: {n}", file=sys.stderr)
+    if measured:
+        for b in out_of_box(design):
+            print(f"note: {b['path']} = {b['value']:g} is outside its tolerance box [{b['min']:g}, {b['max']:g}]",
+                  file=sys.stderr)
+
+
+def _append_record(args, doc: dict, command: str, measured, extra_files=()) -> None:
+    """Append the run record when --log/--serial are given (hashes of the design and every input)."""
+    if getattr(args, "log", None) is None:
+        return
+    from .records import append_record, record_from_report
+
+    files = list(measured.files if measured else ()) + [str(f) for f in extra_files]
+    rec = record_from_report(doc, serial=args.serial, command=command, design_path=_design_path(args.design),
+                             input_files=files, settings=tuple(measured.settings if measured else ()))
+    append_record(args.log, rec)
+
+
+def _channel_map(items) -> dict:
+    out = {}
+    for text in items or ():
+        col, sep, tap = text.partition("=")
+        if not sep or not col.strip() or not tap.strip():
+            raise InputError(f"--channel expects COLUMN=TAP, got {text!r}")
+        if col.strip() in out:
+            raise InputError(f"--channel: column {col.strip()!r} given twice")
+        out[col.strip()] = tap.strip()
+    return out
+
+
+def _judge_inputs(args):
+    """(design with measured values, Measured, capture) for judge and correlate."""
+    from .capture import read_capture
+
+    _check_log_options(args)
+    design, measured = _measured_design(args)
+    cap = read_capture(args.capture)
+    return design, measured, cap
+
+
+def _finish(args, doc, text, command, measured, passed) -> int:
+    import json
+
+    _append_record(args, doc, command, measured, extra_files=[args.capture])
+    body = json.dumps(doc, indent=2, allow_nan=False) + "\n" if args.json else text
+    sys.stdout.write(body)
+    return EXIT_PASS if passed else EXIT_FAIL
+
+
+def cmd_judge(args) -> int:
+    """Judge captured edges against the design's thresholds and budget (exit 0 pass, 1 fail, 2 bad input)."""
+    from .analyses import out_of_box
+    from .judge import judge_capture
+
+    design, measured, cap = _judge_inputs(args)
+    rep = judge_capture(design, cap, args.driver, args.edge, channels=_channel_map(args.channel),
+                        t_edge=args.t_edge, levels=args.levels, remove_offset=args.remove_offset,
+                        guardband=args.guardband, noise=args.noise, allow_partial=args.allow_partial)
+    rep.measured = measured.to_json(design)
+    rep.out_of_box = out_of_box(design) if measured else []
+    rep.notes += list(measured.notes)
+    return _finish(args, rep.to_json(), rep.text(), "judge", measured, rep.passed)
+
+
+def cmd_correlate(args) -> int:
+    """Measured vs predicted metrics (exit 0 the model describes the unit, 1 it does not, 2 bad input)."""
+    from .analyses import out_of_box
+    from .correlate import correlate
+
+    design, measured, cap = _judge_inputs(args)
+    rep = correlate(design, cap, args.driver, args.edge, channels=_channel_map(args.channel),
+                    tolerances={"level": args.level_tolerance, "voltage": args.voltage_tolerance,
+                                "time": args.time_tolerance}, noise=args.noise)
+    rep.measured = measured.to_json(design)
+    rep.out_of_box = out_of_box(design) if measured else []
+    rep.notes += list(measured.notes)
+    return _finish(args, rep.to_json(), rep.text(), "correlate", measured, rep.describes)
+
+
+def _fraction(text: str) -> float:
+    """argparse type: a fraction written as '5%' or a plain number (0.05)."""
+    t = text.strip()
+    try:
+        x = float(t[:-1]) / 100.0 if t.endswith("%") else float(t)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a percentage ('5%') or a fraction (0.05), got {text!r}") from None
+    import math
+
+    if not (math.isfinite(x) and x >= 0):
+        raise argparse.ArgumentTypeError(f"must be a finite fraction >= 0, got {text!r}")
+    return x
+
+
+def _capture_options(parser) -> None:
+    parser.add_argument("design", help="design file, or example:NAME")
+    parser.add_argument("--capture", required=True, metavar="FILE",
+                        help="captured waveforms: CSV with a time column and one column per channel (units in "
+                             "the header, e.g. 'Time (ns)', 'CH1 (mV)'; SI when none)")
+    parser.add_argument("--driver", required=True, help="name of the driving tap")
+    parser.add_argument("--edge", required=True, choices=("rise", "fall"))
+    parser.add_argument("--channel", action="append", default=[], metavar="COLUMN=TAP",
+                        help="map a capture column to a tap (repeatable); columns named like taps need none; a "
+                             "column mapped to the driver gives the time origin")
+    parser.add_argument("--noise", metavar="SIGMA", default=None,
+                        type=_quantity_type("voltage", lambda x: x >= 0, "a voltage >= 0"),
+                        help="noise sigma of the capture (default: estimated from the pre-edge samples)")
+    parser.add_argument("--json", action="store_true", help="one JSON document instead of the text table")
 
 
 def _quantity_type(dimension: str, check=None, what=""):
@@ -416,6 +609,7 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--csv", required=True, help="output CSV path ('-' for standard output)")
     w.add_argument("--dt", type=_seconds, default=None, help="time step, e.g. '5 ps' (default: automatic)")
     w.add_argument("--t-stop", type=_seconds, default=None, help="window, e.g. '40 ns' (default: automatic)")
+    _measured_options(w, log=False)
     w.set_defaults(func=cmd_waves)
 
     e = sub.add_parser("examples", help="list the bundled example designs")
@@ -436,6 +630,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--out", metavar="FILE", default=None,
                    help="write the report to FILE instead of standard output (a one-line verdict is printed)")
     _analysis_options(c)
+    _measured_options(c)
     c.set_defaults(func=cmd_check)
 
     pl = sub.add_parser(
@@ -519,6 +714,48 @@ def build_parser() -> argparse.ArgumentParser:
     bo.add_argument("-n", type=_positive, default=6, help="arrivals at the load (default 6)")
     bo.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.bounce/1)")
     bo.set_defaults(func=_cmd_bounce)
+
+    jd = sub.add_parser(
+        "judge", help="judge captured edges by the simulation's metrics against the design's thresholds and budget",
+        description="Judge each captured receiver channel by the metrics of the budget (the same kernels as the "
+                    "simulation) against the design's thresholds, ratings and budget. Noise: estimated from the "
+                    "pre-edge samples; the raw samples are judged, so noise counts against a margin. Exit 0 = every "
+                    "channel passes, 1 = a margin or rating is violated, 2 = bad input (also a capture that misses "
+                    "or cuts the edge). Results are estimates: confirm with the part makers' data.")
+    _capture_options(jd)
+    jd.add_argument("--t-edge", metavar="T", type=_quantity_type("time"), default=None,
+                    help="time in the capture at which the driver's edge starts (flight times need it, or a "
+                         "captured driver channel; otherwise they are reported as not available)")
+    jd.add_argument("--levels", choices=("design", "capture"), default="design",
+                    help="V_lo/V_hi from the design's DC solution (default) or from the capture's settled start "
+                         "and end")
+    jd.add_argument("--remove-offset", action="store_true",
+                    help="shift each trace so its pre-edge level equals the design's DC level (a probe offset); "
+                         "the offset is always reported")
+    jd.add_argument("--guardband", metavar="V", default=0.0,
+                    type=_quantity_type("voltage", lambda x: x >= 0, "a voltage >= 0"),
+                    help="measurement uncertainty subtracted from every margin and rating headroom (default 0 V)")
+    jd.add_argument("--allow-partial", action="store_true",
+                    help="judge a capture whose window cuts the edge (marked partial; it cannot pass)")
+    _measured_options(jd)
+    jd.set_defaults(func=cmd_judge)
+
+    co = sub.add_parser(
+        "correlate", help="measured vs predicted metrics: does the model describe this unit?",
+        description="Simulate the same driver and edge with the unit's measured values (--set/--values) and "
+                    "compare each metric of the capture with the prediction. Aligned in time on the driver "
+                    "channel when captured, else on the first 50 %% crossing at the first receiver channel. "
+                    "Exit 0 = the model describes the unit (every metric within tolerance), 1 = it does not, "
+                    "2 = bad input.")
+    _capture_options(co)
+    co.add_argument("--level-tolerance", metavar="PCT", type=_fraction, default=None,
+                    help="V_lo/V_hi tolerance in %% of the swing (default 3%%)")
+    co.add_argument("--voltage-tolerance", metavar="PCT", type=_fraction, default=None,
+                    help="overshoot/undershoot/ringback/margin tolerance in %% of the swing (default 5%%)")
+    co.add_argument("--time-tolerance", metavar="PCT", type=_fraction, default=None,
+                    help="t_switch/t_valid tolerance in %% of the 10-90 %% edge time (default 10%%)")
+    _measured_options(co)
+    co.set_defaults(func=cmd_correlate)
     return p
 
 

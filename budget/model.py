@@ -496,6 +496,32 @@ class Design:
             st = replace(st, source=source)
         return Design._assemble(st, P)
 
+    def with_tolerance_box(self, box: Mapping[str, tuple[float, float]]) -> "Design":
+        """Return a copy whose tolerance box is ``box``: dotted path -> absolute (min, max) in SI units.
+
+        The values are unchanged; the box only steers the tolerance analyses (corners,
+        sampling, search) and the automatic step and window.  Each path must name a
+        numeric value and min <= max; a box that leaves the physical range is refused
+        like one written in a file.
+        """
+        from .errors import DesignError
+
+        st = self.structure
+        out = {}
+        for path, bounds in box.items():
+            if path not in st.dimensions:
+                raise DesignError(f"no numeric value at this path; known paths: {_path_hint(st, path)}",
+                                  source=st.source, table="tolerances", key=path)
+            lo, hi = (float(b) for b in bounds)
+            if not (math.isfinite(lo) and math.isfinite(hi) and lo <= hi):
+                raise DesignError(f"need finite min <= max, got [{lo:g}, {hi:g}]", source=st.source,
+                                  table="tolerances", key=path)
+            out[path] = (lo, hi)
+        if out:
+            # the box's ends must be physical, as for a file's [tolerances]
+            self.with_values({p: np.array(b) for p, b in out.items()})
+        return Design._assemble(replace(st, tolerances=frozen(out)), self.params)
+
     def _with_values_trusted(self, values: Mapping[str, Any]) -> "Design":
         """with_values without conversion or checks, for slices of values already validated (internal)."""
         P = dict(self.params)

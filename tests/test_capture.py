@@ -165,7 +165,7 @@ def test_judging_the_engine_waveform_gives_the_evaluation_kernels_result(edge):
 
     design = budget.example("short-bus")
     w = budget.simulate(design, "CTRL", edge)
-    receivers, metrics, bits, _head, levels = evaluate(design, "CTRL", edge, dt=w.dt, t_stop=float(w.t[-1]))
+    receivers, metrics, bits, head, levels = evaluate(design, "CTRL", edge, dt=w.dt, t_stop=float(w.t[-1]))
     for r, name in enumerate(receivers):
         j = cap.judge_waveform(design, w.t, w[name], name, edge, "CTRL")
         assert (j.v_lo, j.v_hi) == (levels[0, r, 0], levels[0, r, 1])
@@ -174,6 +174,7 @@ def test_judging_the_engine_waveform_gives_the_evaluation_kernels_result(edge):
         order = [mk.METRIC_NAMES.index(k) for k in j.metrics.as_dict()]
         np.testing.assert_array_equal(got, want[order])
         assert j.bits == bits[0, r] and j.passed == (bits[0, r] == 0)
+        assert j.headroom == head[0, r]
 
 
 def test_judging_a_shifted_capture_moves_only_the_flight_times():

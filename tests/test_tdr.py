@@ -76,7 +76,13 @@ def test_peeling_inverts_the_lattice_exactly(z, r_port, emf):
     rho, zout = np.full(len(z), np.nan), np.full(len(z), np.nan)
     k = peel_layers(a, b, r_port, END_RHO, rho, zout)
     assert k == len(z)   # adjacent ratios below 10: no reflection reaches END_RHO
-    np.testing.assert_allclose(zout, z, rtol=1e-9)
+    # exact up to rounding, which the layers amplify by the product of the impedance ratios at the
+    # interfaces, prod(max(Z_k, Z_k+1) / min(...)) = prod((1 + |rho|) / (1 - |rho|)): measured on 3000
+    # random profiles of up to 25 sections alternating with 20 ohm, the error stayed below 0.97 x
+    # eps x that product (hypothesis had found 1e-8 for 13 sections against a fixed 1e-9)
+    zz = np.array([r_port, *z])
+    amplification = float(np.prod(np.maximum(zz[1:], zz[:-1]) / np.minimum(zz[1:], zz[:-1])))
+    np.testing.assert_allclose(zout, z, rtol=1e-12 + 4 * np.finfo(float).eps * amplification)
 
 
 def test_peeling_is_linear_in_the_step_height():

@@ -65,6 +65,25 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
     Times that never occur (an edge that never becomes valid, a waveform that
     never settles) are NaN.  ``out[MONOTONIC]`` is 1.0 or 0.0.
     """
+    edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 0.0, math.inf, out)
+
+
+@kernel
+def edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, hysteresis, t_open, out):
+    """:func:`edge_metrics` with the fall-back detection widened by ``hysteresis`` [V] and a latest window opening.
+
+    A fall-back (which opens the ringback window and marks a non-monotonic
+    edge) is a drop of more than 2 % of the swing *plus* ``hysteresis`` below
+    the running maximum.  0 gives the metric contract exactly (simulated
+    waveforms); measured traces pass a multiple of their noise sigma so that
+    noise alone does not open the window on the rising edge
+    (:mod:`budget.judge`).  Every sample still counts in the minimum, so noise
+    lowers the margin, never raises it.
+
+    t_open [s]: the ringback window opens at the latest at the first sample at
+    or after t_open (once the valid threshold is reached), taking in the
+    samples since the last new maximum; math.inf = only the fall-back rule.
+    """
     n = t.shape[0]
     sgn = 1.0 if rising else -1.0
     if rising:
@@ -78,7 +97,7 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
         x_end = -v_lo
         x_start = -v_hi
     swing = abs(x_end - x_start)
-    fall_back = MONOTONIC_FRACTION * swing
+    fall_back = MONOTONIC_FRACTION * swing + hysteresis
 
     v_peak = -math.inf
     v_trough = math.inf
@@ -120,6 +139,8 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
         # maximum at the first fall-back of more than 2 % of the swing), or, for an
         # edge that never falls back, from its last new maximum
         if first_valid >= 0:
+            if not fallen and t[i] >= t_open:
+                fallen = True
             if fallen:
                 if x < min_after:
                     min_after = x
@@ -163,6 +184,35 @@ def edge_metrics(t, v, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, alloc, 
     out[MARGIN] = min(held, x_end) - b_th - alloc
     out[V_PEAK] = v_peak
     out[V_TROUGH] = v_trough
+
+
+@kernel
+def first_peak_time(t, v, rising, vih, vil, fall_back):
+    """Time [s] of the first peak of v(t) after it first reaches the valid threshold.
+
+    The first peak is the running maximum (of x = v, or -v for a falling edge)
+    at the first fall-back of more than ``fall_back`` [V] below it, as in
+    :func:`edge_metrics_hyst`; math.inf when the trace never becomes valid or
+    never falls back.  Used on a smoothed copy of a measured trace.
+    """
+    sgn = 1.0 if rising else -1.0
+    b_th = vih if rising else -vil
+    valid = False
+    peak = -math.inf
+    t_peak = math.inf
+    for i in range(t.shape[0]):
+        x = sgn * v[i]
+        if not valid:
+            if x >= b_th:
+                valid = True
+            else:
+                continue
+        if x > peak:
+            peak = x
+            t_peak = t[i]
+        elif peak - x > fall_back:
+            return t_peak
+    return math.inf
 
 
 @kernel
