@@ -460,7 +460,7 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
     """
     from .errors import ArgumentError
     from .kernels import metrics as mk
-    from .metrics import from_vector
+    from .metrics import allocation_terms, from_vector
     from .simulate import simulate
     from .sweep import t_ref_of
 
@@ -494,20 +494,20 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
                            "the edge began", source=source, column=receiver)
     swing = abs(v_hi - v_lo)
     # the same arithmetic as the evaluation kernel (budget/kernels/evaluate.py)
-    alloc = sum(x for x, unit in design.budget.allocations.values() if unit == "V") + \
-        sum(x for x, unit in design.budget.allocations.values() if unit == "swing") * swing
+    alloc_v, alloc_f = allocation_terms(design.noise_budget)
+    alloc = alloc_v + alloc_f * swing
     t_ref = float(t_ref_of(design, driver, edge, 1)[0]) + float(t_edge)
     out = np.empty(mk.N_METRICS)
     if not (np.isfinite(hysteresis) and hysteresis >= 0):
         raise ArgumentError(f"hysteresis must be a finite voltage >= 0, got {hysteresis!r}")
     if not (np.isfinite(guardband) and guardband >= 0):
         raise ArgumentError(f"guardband must be a finite voltage >= 0, got {guardband!r}")
-    mk.edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.budget.settle_band) * swing,
+    mk.edge_metrics_hyst(t, v, rising, v_lo, v_hi, vil, vih, t_ref, float(design.noise_budget.settle_band) * swing,
                          float(alloc), float(hysteresis), float(t_open), out)
     out[mk.MARGIN] -= float(guardband)
     v_max = np.inf if part.v_max is None else float(part.v_max) - float(guardband)
     v_min = -np.inf if part.v_min is None else float(part.v_min) + float(guardband)
-    min_margin = float(design.budget.min_margin)
+    min_margin = float(design.noise_budget.min_margin)
     bits = int(mk.violation_bits(out, v_max, v_min, min_margin))
     head, which = mk.headroom_terms(out, v_max, v_min, min_margin)
     return Judgement(receiver=receiver, driver=driver, edge=edge, v_lo=v_lo, v_hi=v_hi,

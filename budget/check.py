@@ -323,15 +323,15 @@ def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -
     limit = limiting_term(design, row["receiver"], tr.metrics[idx], values)
     part = design.parts[design.tap(row["receiver"]).part]
     v_max, v_min = (values.get(f"parts.{part.name}.{k}", getattr(part, k)) for k in ("v_max", "v_min"))
-    min_margin = float(design.budget.min_margin)
+    min_margin = float(design.noise_budget.min_margin)
     worst = worst_summary(row, limit, v_max, v_min, min_margin)
     passed = all(r["pass"] for r in results) and all(t.failed == 0 for t in trackers)
     for name, a in analyses.items():
         a["passed"] = a["failed"] == 0
     budget = {
         "allocations": {name: {"value": v, "unit": "V" if unit == "V" else "fraction of swing"}
-                        for name, (v, unit) in design.budget.allocations.items()},
-        "min_margin": min_margin, "settle_band": float(design.budget.settle_band),
+                        for name, (v, unit) in design.noise_budget.allocations.items()},
+        "min_margin": min_margin, "settle_band": float(design.noise_budget.settle_band),
     }
     return CheckReport(design=design.bus.name, source=str(design.source), signaling=design.bus.signaling,
                        passed=bool(passed), worst=worst, results=results, analyses=analyses,

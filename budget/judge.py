@@ -447,7 +447,7 @@ def _worst(design, rows, judgements, guardband) -> dict:
     part = design.parts[design.tap(row["receiver"]).part]
     v_max = None if part.v_max is None else float(part.v_max) - guardband
     v_min = None if part.v_min is None else float(part.v_min) + guardband
-    w = worst_summary(row, j.limit, v_max, v_min, float(design.budget.min_margin))
+    w = worst_summary(row, j.limit, v_max, v_min, float(design.noise_budget.min_margin))
     if row.get("partial"):
         w["metric"], w["value"], w["limit"] = "window", None, "the capture must cover the edge until it settles"
     return {"channel": row["channel"], **w}

@@ -137,8 +137,8 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
         ax.axhspan(vil, vih, color=BAND, alpha=0.35, lw=0, label="threshold region VIL..VIH")
         v_lo, v_hi = float(dc[lo_i, node, 0]), float(dc[hi_i, node, 0])
         swing = abs(v_hi - v_lo)
-        alloc = allocation(design.budget, swing)
-        need = vih + alloc + design.budget.min_margin if rising else vil - alloc - design.budget.min_margin
+        alloc = allocation(design.noise_budget, swing)
+        need = vih + alloc + design.noise_budget.min_margin if rising else vil - alloc - design.noise_budget.min_margin
         ax.axhline(need, color=REQUIRED, lw=1.0, ls=":", label="required level (threshold + budget)")
         for lim, key in ((part.v_max, "v_max"), (part.v_min, "v_min")):
             if lim is not None and (float(np.min(waves[:, j, :])) - swing < lim < float(np.max(waves[:, j, :])) + swing):

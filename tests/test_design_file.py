@@ -96,7 +96,7 @@ def test_base_design_loads_with_si_values():
     assert d.parts["rx"].r_in == math.inf           # absent: no input resistance
     assert d.parts["rx"].l_pkg == 0.0               # absent: no package inductance
     assert d.tolerances["lines.trunk.z0"] == pytest.approx((45.0, 55.0))
-    assert d.budget.allocations["supply_noise"] == (pytest.approx(0.05), "swing")
+    assert d.noise_budget.allocations["supply_noise"] == (pytest.approx(0.05), "swing")
     assert d.drivers == ("U1",) and d.receivers == ("U1", "U2")
 
 
