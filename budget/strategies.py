@@ -44,8 +44,8 @@ JIT-compiled code and hypothesis
 The first example of a test pays numba's compile (or cache load) time, which
 hypothesis would report as a flaky deadline.  :data:`JIT_PROFILE` names a
 settings profile registered here (no deadline, no ``too_slow`` health check);
-load it with ``settings.load_profile(budget.strategies.JIT_PROFILE)`` or
-decorate a test with :data:`JIT_SETTINGS`.
+load it with ``settings.load_profile(budget.strategies.JIT_PROFILE)`` (e.g. in
+a ``conftest.py``), or decorate a test with :func:`jit_settings`.
 """
 from __future__ import annotations
 
@@ -62,8 +62,18 @@ from .model import SIGNALING, Design
 from .testing import Variant, variant
 
 JIT_PROFILE = "busbudget-jit"
-JIT_SETTINGS = settings(deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-settings.register_profile(JIT_PROFILE, JIT_SETTINGS)
+_JIT = {"deadline": None, "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large]}
+settings.register_profile(JIT_PROFILE, **_JIT)
+
+
+def jit_settings(**overrides) -> settings:
+    """Hypothesis settings for tests of JIT-compiled code: no deadline, no ``too_slow`` health check.
+
+    Use as a decorator, ``@jit_settings(max_examples=30)``; every setting not
+    given here comes from the profile active when the test module is imported
+    (so a CI profile with its own ``max_examples`` or seed still applies).
+    """
+    return settings(**{**_JIT, **overrides})
 
 
 class InvalidStrategyArgument(ArgumentError, InvalidArgument):
@@ -133,13 +143,15 @@ def _value(lo: float, hi: float, x0: float):
     sides = [s for s, room in ((1.0, hi - a), (-1.0, a - lo)) if room > 0]
     if not sides:
         return st.just(a)
-    frac = st.one_of(st.floats(0.0, 1.0), st.just(1.0))
+    # (side, at the end?, fraction of the way to the end): a fixed shape of choices, so the
+    # shrinker can turn "at the end" off and then walk the fraction down to 0 (the nominal)
 
-    def at(side, f):
+    def at(choice):
+        side, to_end, f = choice
         end = hi if side > 0 else lo
-        return end if f == 1.0 else min(max(a + f * (end - a), lo), hi)
+        return end if to_end or f == 1.0 else min(max(a + f * (end - a), lo), hi)
 
-    return st.tuples(st.sampled_from(sides), frac).map(lambda sf: at(*sf))
+    return st.tuples(st.sampled_from(sides), st.booleans(), st.floats(0.0, 1.0)).map(at)
 
 
 def variants(design: Design, *, within: Mapping[str, tuple] | None = None) -> st.SearchStrategy:
@@ -493,4 +505,4 @@ def mirrored_buses(*, min_taps: int = 2, max_taps: int = 16, signaling: str | No
 
 
 __all__ = ["variants", "buses", "mirrored_buses", "GeneratedBus", "InvalidStrategyArgument", "JIT_PROFILE",
-           "JIT_SETTINGS"]
+           "jit_settings"]
