@@ -211,6 +211,9 @@ def worst_case(design: Design | Sequence[Design], *, analysis: str = "nominal",
     # per design: the values that differ from base
     diffs = [{p: float(d.params[p]) for p in base.params if float(d.params[p]) != float(base.params[p])}
              for d in designs]
+    if analysis == "corners" and not varied_paths(base):
+        raise ArgumentError(f"{base.source}: analysis='corners' needs [tolerances] (the design has none, or only "
+                            "zero ones); use analysis='nominal'")
     run_corners = analysis == "corners" or (analysis == "default" and default_corners(base)["run"])
     corner_vals, codes, paths = {}, np.zeros((0, 0), dtype=np.int64), []
     if run_corners and varied_paths(base):
@@ -228,6 +231,8 @@ def worst_case(design: Design | Sequence[Design], *, analysis: str = "nominal",
             labels.append((f"{who}, " if who else "") + f"corner {c + 1} of {n_c}")
             rows.append((vals, c))
     changed = sorted({p for vals, _ in rows for p in vals}, key=list(base.params).index)
+    if not changed and len(rows) > 1:
+        changed = [next(iter(base.params))]       # every variant nominal: still one result per variant
     values = {p: np.array([vals.get(p, float(base.params[p])) for vals, _ in rows]) for p in changed}
     try:
         res = sweep(base, values or None)

@@ -428,6 +428,9 @@ def injected_current(design, w):
     return i - i[0]
 
 
+RECIPROCITY_TOL = 1e-8   # relative, of n x max|dv| x max|i| (see the test)
+
+
 def reciprocity_error(d, a, b, edge, t_stop, *, current=injected_current):
     """Relative mismatch of dv_B(A drives) * i_B(B drives) and dv_A(B drives) * i_A(A drives)."""
     wa = budget.simulate(d, driver=a, edge=edge, t_stop=t_stop)
@@ -456,10 +459,13 @@ def test_transfer_between_two_pins_is_reciprocal(bus, edge, pick):
     # The engine's discrete network (trapezoidal companions, characteristic lines,
     # interpolated delays) is itself reciprocal, so the identity holds to round-off, for
     # any driver levels and r_high != r_low (the driver conductance is outside N).
+    # Typical mismatch 1e-15..1e-12 of the scale; the largest seen in 300 examples was
+    # 1.5e-9 (six pins on one node behind package inductors, no pin capacitance); a
+    # wrong transfer is off by 1e-3 or more (test_reciprocity_check_can_fail).
     assume(len(bus.drivers) >= 2)
     a, b = pick.sample(list(bus.drivers), 2)
     err = reciprocity_error(bus, a, b, edge, T_WINDOW)
-    assert err <= 1e-9, f"reciprocity mismatch {err:.3g} (relative)"
+    assert err <= RECIPROCITY_TOL, f"reciprocity mismatch {err:.3g} (relative)"
 
 
 def test_reciprocity_check_can_fail():
@@ -484,7 +490,7 @@ c_pin = "1 pF"
 vih = "0.7 V"
 vil = "0.3 V"
 """)
-    assert reciprocity_error(d, "A", "C", "rise", 4e-9) <= 1e-9
+    assert reciprocity_error(d, "A", "C", "rise", 4e-9) <= RECIPROCITY_TOL
 
     def open_circuit(design, w):
         part = design.parts[design.tap(w.driver).part]
@@ -591,6 +597,6 @@ def test_large_mirror_symmetric_buses_give_mirrored_waveforms(bus, edge):
 def test_large_buses_are_reciprocal_and_passive(bus, edge, pick):
     assume(len(bus.drivers) >= 2)
     a, b = pick.sample(list(bus.drivers), 2)
-    assert reciprocity_error(bus, a, b, edge, T_WINDOW) <= 1e-9
+    assert reciprocity_error(bus, a, b, edge, T_WINDOW) <= RECIPROCITY_TOL
     w = budget.simulate(bus, driver=a, edge=edge, t_stop=T_WINDOW)
     assert not energy_violations(bus, w)
