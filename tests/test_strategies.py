@@ -280,3 +280,17 @@ def test_a_batch_of_variants_is_one_sweep_with_the_same_worst_case(batch):
     alone = [worst_case(v) for v in batch]
     assert together["evaluated"] == len(batch)
     assert together["headroom"] == min(c["headroom"] for c in alone)
+
+
+def test_strategies_is_the_only_module_importing_hypothesis():
+    """hypothesis is an optional extra: no other module of the package may import it."""
+    import ast
+
+    users = set()
+    for path in Path(budget.__file__).parent.rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text())):
+            names = [a.name for a in node.names] if isinstance(node, ast.Import) else \
+                [node.module or ""] if isinstance(node, ast.ImportFrom) else []
+            if any(n == "hypothesis" or n.startswith("hypothesis.") for n in names):
+                users.add(path.name)
+    assert users == {"strategies.py"}
