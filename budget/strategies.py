@@ -59,7 +59,7 @@ from hypothesis.errors import InvalidArgument
 
 from .errors import ArgumentError, DesignError
 from .model import SIGNALING, Design
-from .testing import Variant, variant
+from .testing import variant
 
 JIT_PROFILE = "busbudget-jit"
 _JIT = {"deadline": None, "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large]}
@@ -115,7 +115,7 @@ def _box(design: Design, within) -> dict:
         _fail(f"variants() takes a Design (from budget.load), got {type(design).__name__}")
     if design.batch_size is not None:
         _fail("variants() takes a design with scalar values, not arrays")
-    base = design.nominal if isinstance(design, Variant) else design
+    base = design
     if within is None:
         box = {p: (lo, hi) for p, (lo, hi) in base.tolerances.items() if hi > lo}
     else:
@@ -173,12 +173,13 @@ def variants(design: Design, *, within: Mapping[str, tuple] | None = None) -> st
     """
     def build():
         box = _box(design, within)
-        base = design.nominal if isinstance(design, Variant) else design
-        parts = {p: _value(lo, hi, float(base.params[p])) for p, (lo, hi) in box.items()}
+        # values shrink towards the design's own (for a Variant: its values, and the result
+        # keeps its changes and its nominal)
+        parts = {p: _value(lo, hi, float(design.params[p])) for p, (lo, hi) in box.items()}
 
         def make(vals):
             try:
-                return variant(base, vals)
+                return variant(design, vals)
             except DesignError as exc:
                 _fail(f"variants(): a drawn variant is non-physical ({exc}); narrow the intervals")
 

@@ -99,7 +99,12 @@ def quantity(design: Design, path: str, value: float) -> str:
 
 
 def describe_changes(nominal: Design, values: Mapping[str, float], notes: Mapping[str, str] | None = None) -> str:
-    """One line per changed value: 'path = value (nominal x)' with units, in the design's path order."""
+    """'path = value (nominal x), ...' with units, in the design's path order."""
+    return ", ".join(change_lines(nominal, values, notes))
+
+
+def change_lines(nominal: Design, values: Mapping[str, float], notes: Mapping[str, str] | None = None) -> list:
+    """One 'path = value (nominal x; note)' entry per value, with units, in the design's path order."""
     order = {p: i for i, p in enumerate(nominal.params)}
     lines = []
     for p in sorted(values, key=lambda q: order.get(q, len(order))):
@@ -109,7 +114,7 @@ def describe_changes(nominal: Design, values: Mapping[str, float], notes: Mappin
         extra = (notes or {}).get(p)
         detail = "; ".join(x for x in (nom, extra) if x)
         lines.append(f"{p} = {quantity(nominal, p, v)}" + (f" ({detail})" if detail else ""))
-    return ", ".join(lines)
+    return lines
 
 
 # ---------------------------------------------------------------------------
@@ -290,7 +295,7 @@ def explain(case: dict, at_least: float = 0.0) -> str:
     if case["changes"]:
         notes = {p: f"tolerance corner: {x}" for p, x in case["extremes"].items()}
         lines.append("  values that differ from nominal:")
-        for item in describe_changes(nominal, case["changes"], notes).split(", "):
+        for item in change_lines(nominal, case["changes"], notes):
             lines.append(f"    {item}")
     else:
         lines.append("  values that differ from nominal: none (the nominal design)")

@@ -294,3 +294,9 @@ def test_strategies_is_the_only_module_importing_hypothesis():
             if any(n == "hypothesis" or n.startswith("hypothesis.") for n in names):
                 users.add(path.name)
     assert users == {"strategies.py"}
+
+
+def test_variants_of_a_variant_keep_its_changes():
+    base = variant(SHORT, {STUB: 0.02})
+    v = _find(variants(base, within={"tap.MEM3.stub.length": ("5 mm", "6 mm")}), lambda v: True)
+    assert v.nominal is SHORT and v.params[STUB] == 0.02 and v.params["tap.MEM3.stub.length"] == 0.005
