@@ -123,25 +123,31 @@ def _slowest_time(design):
 
 
 def _converges(d, driver, edge):
-    # A lightly damped bus (a 5 ohm driver on an open 120 ohm line loses 8 % a round
-    # trip) may need many round trips: the window is doubled, up to 8 x, until the
-    # pins are within 1 % of the swing of the DC levels.  Not converging by then, or
-    # converging to another level, fails.
+    # The late waveform must oscillate about the independent DC level: the mean over the
+    # last tenth of the window within 1 % of the swing.  The mean, not the last sample: a
+    # lossless network whose only loss is the driver can hold a mode with (almost) no
+    # voltage at the driver's pin, which the driver barely damps (seen: a ring of lossless
+    # lines whose branch still rang at 2 % of the swing after 800 round trips, about a
+    # mean 1e-4 of the swing from the DC level).  The window is doubled, up to 8 x, until
+    # the mean is there; converging to another level fails.
     v_start, v_end = _independent_dc(d, driver, edge)
     swing = max(float(np.max(np.abs(v_end - v_start))), 1e-6)
     t_stop = _slowest_time(d)
     for _ in range(4):
         w = budget.simulate(d, driver=driver, edge=edge, t_stop=t_stop)
-        late = np.max(np.abs(w.v[-1] - v_end)) / swing
+        tail = w.v[-max(len(w.t) // 10, 1):]
+        late = np.max(np.abs(tail.mean(axis=0) - v_end)) / swing
         if late < 0.01:
             break
         t_stop *= 2
+    if np.max(np.abs(w.v[-1] - v_end)) > 0.01 * swing:
+        event("still ringing by more than 1 % of the swing at the end of the window")
     # the engine's own DC levels agree with the independent solve
     np.testing.assert_allclose(w.v_start, v_start, rtol=0, atol=1e-9 * swing + 1e-12)
     np.testing.assert_allclose(w.v_end, v_end, rtol=0, atol=1e-9 * swing + 1e-12)
-    # the first sample is the start state, the last has settled onto the end state
+    # the first sample is the start state, the late waveform is centred on the end state
     np.testing.assert_allclose(w.v[0], v_start, rtol=0, atol=1e-9 * swing + 1e-12)
-    assert late < 0.01, f"{100 * late:.3g} % of the swing from the DC level after {w.t[-1]:.3g} s"
+    assert late < 0.01, f"late mean {100 * late:.3g} % of the swing from the DC level after {w.t[-1]:.3g} s"
 
 
 @given(bus=small_buses, edge=edges)
