@@ -242,7 +242,7 @@ def _draw_edge_and_levels(draw, signaling):
     rise = _ints(draw, 20, 200) * 1e-10 if diff else _ints(draw, 2, 30) * 1e-10
     fall = rise if not draw(st.booleans()) else (_ints(draw, 20, 200) if diff else _ints(draw, 2, 30)) * 1e-10
     if diff:
-        v = _ints(draw, 3, 30) / 10            # differential output level +-v [V]
+        v = _ints(draw, 5, 30) / 10            # differential output level +-v [V], above every vih
         return rise, fall, -v, v
     v_lo = _ints(draw, 0, 4) / 10
     return rise, fall, v_lo, v_lo + _ints(draw, 8, 50) / 10

@@ -64,6 +64,16 @@ def _source_paths(design):
     return paths
 
 
+def _level_paths(design):
+    """Source voltages and receiver thresholds: moved together, every threshold stays reachable.
+
+    Thresholds do not enter the waveforms; they move along only so that the changed
+    design stays valid (a threshold the bus can never reach is refused at load).
+    """
+    return _source_paths(design) + [f"parts.{n}.{k}" for n, p in design.parts.items() if p.can_receive
+                                    for k in ("vih", "vil")]
+
+
 def _grounded(design) -> bool:
     """True if some resistor returns to ground (an input resistance or a Thevenin r_down)."""
     return any(math.isfinite(design.parts[t.part].r_in) for t in design.taps) or \
@@ -76,7 +86,7 @@ def _grounded(design) -> bool:
 @given(bus=small_buses, edge=edges, k=st.floats(0.1, 5.0))
 def test_scaling_every_source_scales_every_waveform(bus, edge, k):
     d, driver = bus
-    dk = d.with_values({p: k * d.params[p] for p in _source_paths(d)})
+    dk = d.with_values({p: k * d.params[p] for p in _level_paths(d)})
     w = budget.simulate(d, driver=driver, edge=edge, t_stop=T_WINDOW)
     wk = budget.simulate(dk, driver=driver, edge=edge, t_stop=T_WINDOW)
     scale = max(np.max(np.abs(w.v)), 1e-3)
@@ -91,7 +101,7 @@ def test_shifting_every_source_is_superposition_of_a_unit_shift(bus, edge, c):
     # no resistor returned to ground, w(s + u) - w(s) = 1 exactly: resistors, lines and
     # inductors see the same differences, capacitors to ground the same dv/dt.
     d, driver = bus
-    paths = _source_paths(d)
+    paths = _level_paths(d)
     shifted = lambda x: d.with_values({p: d.params[p] + x for p in paths})  # noqa: E731
     w = budget.simulate(d, driver=driver, edge=edge, t_stop=T_WINDOW)
     wc = budget.simulate(shifted(c), driver=driver, edge=edge, t_stop=T_WINDOW)

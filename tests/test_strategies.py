@@ -26,7 +26,8 @@ def _find(strategy, condition, max_examples=2000):
     """The minimal example of ``strategy`` satisfying ``condition`` (hypothesis.find, JIT profile)."""
     from hypothesis import find
 
-    return find(strategy, condition, settings=settings(jit_settings(max_examples=max_examples, database=None),
+    return find(strategy, condition, settings=settings(jit_settings(max_examples=max_examples, database=None,
+                                                                    derandomize=True),
                                                        suppress_health_check=list(HealthCheck)))
 
 
