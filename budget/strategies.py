@@ -389,6 +389,9 @@ class GeneratedBus(Design):
     def _repr_pretty_(self, p, cycle):
         p.text(repr(self))
 
+    def __reduce__(self):  # rebuilt from its text
+        return (_load, (self.text, dict(self.mirror)))
+
 
 def _load(text: str, mirror=None) -> GeneratedBus:
     from .design_file import loads

@@ -60,6 +60,9 @@ class Variant(Design):
     def _repr_pretty_(self, p, cycle):  # hypothesis' and IPython's pretty printer
         p.text(repr(self))
 
+    def __reduce__(self):  # rebuilt from its nominal and changes (dask workers, multiprocessing)
+        return (variant, (self.nominal, dict(self.changes)))
+
 
 def variant(design: Design, values: Mapping[str, float], *, source: str | None = None) -> Variant:
     """``design.with_values(values)`` that remembers ``design`` as its nominal.

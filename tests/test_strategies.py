@@ -144,7 +144,14 @@ def test_variant_prints_as_one_line_and_pickles():
     v = variant(SHORT, {STUB: 0.02})
     assert repr(v) == "<variant of 'Wren address bus': tap.MEM2.stub.length = 20 mm (nominal 4 mm)>"
     back = pickle.loads(pickle.dumps(v))
-    assert back.changes == v.changes and back.params[STUB] == 0.02
+    assert isinstance(back, Variant) and back.changes == v.changes and back.params[STUB] == 0.02
+
+
+@settings(max_examples=5)
+@given(d=mirrored_buses(max_taps=4))
+def test_drawn_buses_pickle_with_their_text_and_mirror(d):
+    back = pickle.loads(pickle.dumps(d))
+    assert back.text == d.text and back.mirror == d.mirror and back.params == d.params
 
 
 # ---------------------------------------------------------------------------
