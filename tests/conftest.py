@@ -7,15 +7,16 @@ from __future__ import annotations
 
 import os
 
-from hypothesis import HealthCheck, settings
+from hypothesis import settings
 
-# Hypothesis profile (project rules: deadline=None): no deadline, because the first example of a
-# test pays the numba JIT compile (or cache load) time.  Modest example counts keep
-# the suite fast on a 2-core machine; HYPOTHESIS_PROFILE=thorough runs more.
-settings.register_profile("busbudget", deadline=None, max_examples=25,
-                          suppress_health_check=[HealthCheck.too_slow])
-settings.register_profile("thorough", deadline=None, max_examples=300,
-                          suppress_health_check=[HealthCheck.too_slow])
+from budget.strategies import JIT_PROFILE
+
+# Hypothesis profiles built on the package's JIT profile (project rules: deadline=None): no
+# deadline, because the first example of a test pays the numba JIT compile (or cache load)
+# time.  Modest example counts keep the suite fast on a 2-core machine;
+# HYPOTHESIS_PROFILE=thorough runs more.
+settings.register_profile("busbudget", settings.get_profile(JIT_PROFILE), max_examples=25)
+settings.register_profile("thorough", settings.get_profile(JIT_PROFILE), max_examples=300)
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "busbudget"))
 
 
