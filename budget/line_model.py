@@ -144,7 +144,7 @@ def loss_sections(r_max: float, z0_min: float, td_min: float, dt: float) -> tupl
 
 
 def model_line(out, a: int, b: int, line_type, length, env_range: tuple, env_length, dt: float, t_ramp,
-               label: str, *, source=None, table: str = "") -> list:
+               label: str, *, source: str = "<design>", table: str | None = None) -> list:
     """Add the elements modelling one line between nodes a and b to ``out``; return notes.
 
     out: a netlist builder with ``node(name)``, ``line(a, b, z0, td)``,
