@@ -343,11 +343,13 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
 
     Inlined into run_block (numba IR inlining), so the block size is a
     compile-time constant for single simulations and the loop sees run_block's
-    own allocations.  One loop nest, not one function per phase: the phases
-    as separate inlined numba functions cost a reference-count call per array
-    argument and step, opaque to LLVM (measured 10-20 % slower on 32-lane
-    blocks of the benchmark bus); as separate compiled functions a single
-    simulation ran 1.7x slower.  Each step, in order:
+    own allocations.  One loop nest, not one function per phase: with the
+    phases as separate inlined numba functions (each binding its array
+    arguments with a reference-count call per step) a single simulation of the
+    benchmark bus ran 2-10 % slower than the undivided kernel, this form 1-3 %
+    (both measured interleaved in one process; 32-lane blocks at parity); as
+    separate compiled functions a single simulation ran 1.7x slower.
+    Each step, in order:
 
     1. Delayed line histories (method of characteristics, F. H. Branin,
        "Transient analysis of lossless transmission lines", Proc. IEEE 55(11),
