@@ -13,10 +13,12 @@ Elements of the flat netlist:
 - ``src``: a Norton source, resistance r to a fixed voltage v.
 - the driver: on its die node, the Norton blend of its two states.
 
-Lines with series loss are split into sections, with the section resistance
-lumped between them (R/(2n) at both ends of every section).  Lines shorter
-than the time step become a lumped pi (C/2, L, C/2) instead of forcing a tiny
-step; :attr:`Netlist.notes` says which.
+How each line becomes elements (lossless section, lumped pi, or lossless
+sections with the series loss lumped between them), and the time step and
+window, are decided in :mod:`budget.line_model`; :attr:`Netlist.notes` says
+which lines were lumped.  The kernels take the result as two structures,
+:attr:`Netlist.topology` and :attr:`Netlist.values`
+(:mod:`budget.kernels.inputs`).
 
 All values may be numpy arrays over a batch of variants (see
 :meth:`budget.Design.with_values`); structural choices (lumped or not, number
@@ -29,90 +31,60 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .edges import EDGES, FALL, RISE, ramp_time
 from .errors import ArgumentError, DesignError
 from .graph import union_roots
+from .kernels.inputs import Topology, Values
+from .line_model import (LOSS_SECTION_FRACTION, LUMPABLE_RAMP_FRACTION, STEPS_PER_LC_PERIOD,  # noqa: F401
+                         STEPS_PER_RAMP, choose_dt, default_t_stop, envelope_range, line_delays,
+                         model_line)
+from .line_model import vmax as _vmax
+from .line_model import vmin as _vmin
 from .model import Design
 
-EDGES = ("rise", "fall")
-
-# -- accuracy policy of the automatic time step --------------------------------
-# Chosen against the scikit-rf reference (tests/test_reference_skrf.py): with these
-# the worst pin error over the test buses and bundled examples is 0.25 % of the swing
-# and the worst 50 % crossing error 0.29 % of the rise time (targets: 1 % and 2 %);
-# over all 128 tolerance corners of the backplane example, 0.49 % of the swing
-# against a 2.5 ps step.
-# Samples across the 0-100 % ramp (10-90 % rise / 0.8 = 0-100 % ramp, linear ramp geometry).
-STEPS_PER_RAMP = 32
-# Samples per period of the fastest package L - pin C resonance: the trapezoidal rule
-# shifts a resonance by about (w dt)^2 / 12, 1.3 % at 16 samples a period, and the line
-# or resistor on the pad side damps it within a few periods.
-STEPS_PER_LC_PERIOD = 16
-# Lumped series loss: sections such that each lumped piece reflects < 0.25 % of a wave,
-# i.e. R_section/(4 z0) <= 0.0025.
-LOSS_SECTION_FRACTION = 0.01
-# Lines may be lumped only if their delay is below the 0-100 % ramp time divided by
-# this (their unresolved ringing stays below ~2 TD / (pi T) = 0.5 % of the swing).
-LUMPABLE_RAMP_FRACTION = 128
-
-
-def ramp_time(design: Design, edge: str):
-    """0-100 % duration [s] of the driver's linear ramp for ``edge`` (= 10-90 % time / 0.8)."""
-    t = design.edge.rise if edge == "rise" else design.edge.fall
-    return np.asarray(t, dtype=float) / 0.8
+# Re-exported for the modules that import them from here.
+__all__ = ["EDGES", "RISE", "FALL", "Netlist", "choose_dt", "default_t_stop", "flatten", "line_delays",
+           "ramp_time", "tolerance_envelope", "STEPS_PER_RAMP", "STEPS_PER_LC_PERIOD",
+           "LOSS_SECTION_FRACTION", "LUMPABLE_RAMP_FRACTION"]
 
 
 @dataclass
 class Netlist:
-    """Flat arrays of one bus for one driver and one edge (see module docstring).
+    """One bus flattened for one driver and one edge (see module docstring).
 
-    Structure arrays are int64; value arrays are float64 of shape
-    ``[n_items, n_variants]``.  Node numbers are grouped so that each cluster
-    (nodes joined by lumped series elements) is contiguous:
-    ``cl_start[c]:cl_start[c+1]``.
+    ``topology`` (:class:`~budget.kernels.inputs.Topology`: int64 arrays, fixed
+    per structure) and ``values`` (:class:`~budget.kernels.inputs.Values`:
+    float64 arrays ``[n_items, n_variants]``, dt, n_steps) are what the kernels
+    take.  Node numbers are grouped so that each cluster (nodes joined by lumped
+    series elements) is contiguous: ``cl_start[c]:cl_start[c+1]``.
     """
-    n_nodes: int
+    topology: Topology
+    values: Values
     node_names: list
-    cl_start: np.ndarray
-    cl_moff: np.ndarray
-    line_a: np.ndarray
-    line_b: np.ndarray
-    res_a: np.ndarray
-    res_b: np.ndarray
-    cap_a: np.ndarray
-    cap_b: np.ndarray
-    ind_a: np.ndarray
-    ind_b: np.ndarray
-    src_node: np.ndarray
-    drv_node: int
-    out_node: np.ndarray
-    dc_map: np.ndarray
-    n_dc: int
-    dc_bw: int
-    tree_kind: np.ndarray
-    tree_elem: np.ndarray
-    tree_child: np.ndarray
-    tree_parent: np.ndarray
-    ring_len: np.ndarray
-    # values
-    line_z0: np.ndarray
-    line_td: np.ndarray
-    res_r: np.ndarray
-    cap_c: np.ndarray
-    ind_l: np.ndarray
-    src_r: np.ndarray
-    src_v: np.ndarray
-    drv_v0: np.ndarray
-    drv_v1: np.ndarray
-    drv_r0: np.ndarray
-    drv_r1: np.ndarray
-    t_ramp: np.ndarray
-    dt: float
-    n_steps: int
     n_variants: int
     taps: tuple
     driver: str
     edge: str
     notes: list = field(default_factory=list)
+
+    @property
+    def dt(self) -> float:
+        """Time step [s]."""
+        return self.values.dt
+
+    @property
+    def n_steps(self) -> int:
+        """Number of samples of the time axis."""
+        return self.values.n_steps
+
+    @property
+    def n_nodes(self) -> int:
+        return self.topology.n_nodes
+
+    @property
+    def out_node(self) -> np.ndarray:
+        """Die node of every tap, in ``taps`` order."""
+        return self.topology.out_node
 
     @property
     def t(self) -> np.ndarray:
@@ -154,16 +126,6 @@ class _Builder:
         self.srcs.append((a, self.v(r), self.v(v)))
 
 
-def _vmax(x):
-    """Largest value of a scalar or an array over variants."""
-    return float(x) if isinstance(x, (float, int)) else float(np.max(x))
-
-
-def _vmin(x):
-    """Smallest value of a scalar or an array over variants."""
-    return float(x) if isinstance(x, (float, int)) else float(np.min(x))
-
-
 _ENVELOPES: dict = {}
 
 
@@ -203,63 +165,9 @@ def tolerance_envelope(design: Design, values=None) -> Design:
     return env
 
 
-def choose_dt(design: Design, edge: str) -> float:
-    """Automatic time step [s] for ``edge`` (or the design's ``bus.dt``).
-
-    The step resolves the driver's ramp (STEPS_PER_RAMP samples over its 0-100 %
-    time) and the fastest package-inductance resonance (STEPS_PER_LC_PERIOD
-    samples a period).  A line shorter than the step is lumped, which cannot
-    ring at its quarter-wave frequency; the corners of a linear ramp of T excite
-    that ringing with up to about 2 TD / (pi T) of the swing, so only lines with
-    TD < T / LUMPABLE_RAMP_FRACTION may be lumped, and longer ones shorten the
-    step to their own delay (at most LUMPABLE_RAMP_FRACTION / STEPS_PER_RAMP = 4x).
-    """
-    if design.bus.dt is not None:
-        return _vmin(design.bus.dt)
-    t_ramp = _vmin(ramp_time(design, edge))
-    dt = t_ramp / STEPS_PER_RAMP
-    for tap in design.taps:
-        part = design.parts[tap.part]
-        l_pkg, c_pin = np.asarray(part.l_pkg), np.asarray(part.c_pin)
-        if _vmax(l_pkg) > 0 and _vmax(c_pin) > 0:
-            period = 2 * math.pi * math.sqrt(_vmin(l_pkg) * max(_vmin(c_pin), 1e-18))
-            dt = min(dt, period / STEPS_PER_LC_PERIOD)
-    for td in line_delays(design):
-        if t_ramp / LUMPABLE_RAMP_FRACTION <= td < dt:
-            dt = td
-    return dt
-
-
-def line_delays(design: Design) -> list:
-    """Shortest one-way delay [s] of every segment and stub (over variants)."""
-    out = [_vmin(design.lines[s.line].delay) * _vmin(s.length) for s in design.segments]
-    out += [_vmin(design.lines[t.stub.line].delay) * _vmin(t.stub.length) for t in design.taps if t.stub]
-    return out
-
-
-def default_t_stop(design: Design, edge: str) -> float:
-    """Simulation window [s] when the design gives none.
-
-    Two ramp times plus twelve times the sum of every line's delay (an upper
-    bound on the longest path, so at least six round trips of any path)
-    plus ten time constants of the slowest RC termination; at least 10 ns.
-    """
-    total_td = 0.0
-    for s in design.segments:
-        total_td += _vmax(np.asarray(design.lines[s.line].delay) * s.length)
-    for t in design.taps:
-        if t.stub is not None:
-            total_td += _vmax(np.asarray(design.lines[t.stub.line].delay) * t.stub.length)
-    tau = 0.0
-    for term in design.terminations:
-        if term.type == "rc":
-            tau = max(tau, _vmax(np.asarray(term.r) * term.c))
-    return max(2 * _vmax(ramp_time(design, edge)) + 12 * total_td + 10 * tau, 10e-9)
-
-
 def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             t_stop: float | None = None, envelope: Design | None = None) -> Netlist:
-    """Flatten ``design`` with tap ``driver`` driving an ``edge`` ("rise" or "fall").
+    """Flatten ``design`` with tap ``driver`` driving an ``edge`` (RISE or FALL).
 
     dt [s] and t_stop [s] override the design's own and the automatic choice.
     ``envelope`` (same structure, values covering a whole sweep) makes the
@@ -294,54 +202,12 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
         b.node(name)
 
     # envelope ranges as plain floats: (min, max) of z0 [ohm], delay [s/m], r_dc [ohm/m] per line type
-    env_lines = {name: tuple(f(getattr(lt, k)) for k in ("z0", "delay", "r_dc") for f in (_vmin, _vmax))
-                 for name, lt in env.lines.items()}
+    env_lines = {name: envelope_range(lt) for name, lt in env.lines.items()}
 
     def add_line(a, bnode, line_name, length, env_length, label):
-        lt = design.lines[line_name]
-        z0, td, r_tot = lt.z0, lt.delay * length, lt.r_dc * length  # floats, or arrays over variants
-        z0_lo, _, d_lo, _, r_lo, r_hi = env_lines[line_name]
-        len_lo, len_hi = _vmin(env_length), _vmax(env_length)
-        etd_min = d_lo * len_lo                  # shortest delay of this line over the envelope [s]
-        er_max = r_hi * len_hi                   # largest series resistance [ohm]
-        lossy = er_max > 0
-        if lossy and min(_vmin(r_tot), r_lo * len_lo) <= 0:
-            raise DesignError("r_dc is zero in some variants and positive in others; give it a small "
-                              "positive minimum", source=design.source, table=f"lines.{line_name}", key="r_dc")
-        if etd_min < dt * (1 - 1e-9):
-            # Electrically short at this step: lumped pi, L = z0 td, C = td / z0 (docs/references.md B1).
-            ring = 2 * _vmax(td) / (math.pi * _vmin(t_ramp_edge)) * 100
-            notes.append(f"{label}: delay {_vmin(td) * 1e12:.3g} ps is below the time step "
-                         f"{dt * 1e12:.3g} ps; modelled as a lumped pi (C/2, L, C/2), which cannot ring "
-                         f"at its quarter-wave frequency (up to ~{ring:.2g} % of the swing on a lightly "
-                         "damped line)")
-            b.c(a, -1, td / z0 / 2)
-            b.c(bnode, -1, td / z0 / 2)
-            if lossy:
-                mid = b.node(f"{label}:mid")
-                b.r(a, mid, r_tot)
-                b.l(mid, bnode, z0 * td)
-            else:
-                b.l(a, bnode, z0 * td)
-            return
-        if not lossy:
-            b.line(a, bnode, z0, td)
-            return
-        # Series loss lumped between lossless sections: R/(2n) | td/n | R/n | ... | td/n | R/(2n).
-        want = math.ceil(er_max / z0_lo / LOSS_SECTION_FRACTION)
-        n_sec = max(1, min(want, int(etd_min / dt * (1 + 1e-9)), 64))
-        if n_sec < want:
-            notes.append(f"{label}: series loss lumped in {n_sec} sections (accuracy would like {want}); "
-                         "expect up to "
-                         f"{100 * _vmax(r_tot / z0) / n_sec / 4:.2g} % of a wave in spurious reflections")
-        prev = a
-        for k in range(n_sec):
-            x = b.node(f"{label}:s{k}a")
-            y = b.node(f"{label}:s{k}b")
-            b.r(prev, x, r_tot / n_sec / (2 if k == 0 else 1))
-            b.line(x, y, z0, td / n_sec)
-            prev = y
-        b.r(prev, bnode, r_tot / n_sec / 2)
+        # the modelling itself (lossless, lumped pi or loss sections) is budget.line_model's
+        notes.extend(model_line(b, a, bnode, design.lines[line_name], length, env_lines[line_name], env_length,
+                                dt, t_ramp_edge, label, source=design.source, table=f"lines.{line_name}"))
 
     for s in design.segments:
         add_line(b.node(s.a), b.node(s.b), s.line, s.length, env.segments[s.index].length,
@@ -391,7 +257,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     # driver states: the edge goes from state 0 to state 1
     lo = (dpart.v_low, dpart.r_low)
     hi = (dpart.v_high, dpart.r_high)
-    (v0, r0), (v1, r1) = (lo, hi) if edge == "rise" else (hi, lo)
+    (v0, r0), (v1, r1) = (lo, hi) if edge == RISE else (hi, lo)
 
     return _assemble(b, design, drv_node, out_nodes, v0, r0, v1, r1, ramp_time(design, edge), dt,
                      n_steps, driver, edge, notes)
@@ -455,20 +321,21 @@ def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, 
 
     if drv_node < 0:
         raise RuntimeError("driver node not found")  # unreachable: flatten checked the tap
-    return Netlist(
-        n_nodes=n0, node_names=names, cl_start=cl_start, cl_moff=cl_moff,
+    topology = Topology(
+        n_nodes=n0, cl_start=cl_start, cl_moff=cl_moff,
         line_a=line_a, line_b=line_b, res_a=res_a, res_b=res_b, cap_a=cap_a, cap_b=cap_b,
         ind_a=ind_a, ind_b=ind_b, src_node=src_node, drv_node=ren(drv_node),
         out_node=np.array([ren(x) for x in out_nodes], dtype=np.int64),
         dc_map=dc_map, n_dc=len(group_list), dc_bw=dc_bw,
         tree_kind=tree_kind, tree_elem=tree_elem, tree_child=tree_child, tree_parent=tree_parent,
-        ring_len=ring_len,
+        ring_len=ring_len)
+    values = Values(
         line_z0=vals(b.lines, 2), line_td=line_td, res_r=vals(b.res, 2), cap_c=vals(b.caps, 2),
         ind_l=vals(b.inds, 2), src_r=vals(b.srcs, 1), src_v=vals(b.srcs, 2),
         drv_v0=b.v(v0).copy(), drv_v1=b.v(v1).copy(), drv_r0=b.v(r0).copy(), drv_r1=b.v(r1).copy(),
-        t_ramp=b.v(t_ramp).copy(), dt=dt, n_steps=n_steps, n_variants=b.n,
-        taps=design.tap_names, driver=driver, edge=edge, notes=notes,
-    )
+        t_ramp=b.v(t_ramp).copy(), dt=float(dt), n_steps=int(n_steps))
+    return Netlist(topology=topology, values=values, node_names=names, n_variants=b.n,
+                   taps=design.tap_names, driver=driver, edge=edge, notes=notes)
 
 
 def _rcm_map(n_groups, gid, res_a, res_b):

@@ -63,19 +63,14 @@ def run_netlist(net: Netlist):
     Returns (waves [n_steps, n_taps, N], dc [2, n_nodes, N], status [N]).
     """
     n = net.n_variants
-    n_out = net.out_node.shape[0]
+    n_out = net.topology.out_node.shape[0]
     waves = np.empty((net.n_steps, n_out, n))
-    dc = np.empty((2, net.n_nodes, n))
+    dc = np.empty((2, net.topology.n_nodes, n))
     status = np.empty(n, dtype=np.int64)
     for b0 in range(0, n, tk.LANES):
         bsz = min(tk.LANES, n - b0)
-        tk.run_block(
-            b0, bsz, (0,) if bsz == 1 else (), net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
-            net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
-            net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child, net.tree_parent,
-            net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l, net.src_r, net.src_v,
-            net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp, net.dt, net.n_steps,
-            waves[:, :, b0:b0 + bsz], dc, status)
+        tk.run_block(b0, bsz, (0,) if bsz == 1 else (), net.topology, net.values,
+                     waves[:, :, b0:b0 + bsz], dc, status)
     return waves, dc, status
 
 

@@ -24,7 +24,7 @@ from .kernels import metrics as mk
 from .kernels.evaluate import evaluate_chunk
 from .metrics import allocation_terms
 from .model import Design
-from .netlist import EDGES, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
+from .netlist import EDGES, RISE, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
 from .roles import driving_part
 from .simulate import check_status
 
@@ -218,12 +218,7 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
     head = np.empty((n, len(receivers)))
     levels = np.empty((n, len(receivers), 2))
     status = np.empty(n, dtype=np.int64)
-    evaluate_chunk(net.n_nodes, net.cl_start, net.cl_moff, net.line_a, net.line_b, net.res_a, net.res_b,
-                   net.cap_a, net.cap_b, net.ind_a, net.ind_b, net.src_node, net.drv_node, net.out_node,
-                   net.dc_map, net.n_dc, net.dc_bw, net.tree_kind, net.tree_elem, net.tree_child,
-                   net.tree_parent, net.ring_len, net.line_z0, net.line_td, net.res_r, net.cap_c, net.ind_l,
-                   net.src_r, net.src_v, net.drv_v0, net.drv_v1, net.drv_r0, net.drv_r1, net.t_ramp,
-                   net.dt, net.n_steps, edge == "rise", rcv_out, vil, vih, vmax, vmin, av, af,
+    evaluate_chunk(net.topology, net.values, edge == RISE, rcv_out, vil, vih, vmax, vmin, av, af,
                    float(design.budget.settle_band), float(design.budget.min_margin), t_ref,
                    metrics, bits, head, levels, status)
     check_status(status, net, design)

@@ -17,16 +17,14 @@ from .transient import LANES, run_block
 
 
 @parallel_kernel
-def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
-                   ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
-                   tree_kind, tree_elem, tree_child, tree_parent, ring_len,
-                   line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
-                   drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps, rising,
+def evaluate_chunk(topo, vals, rising,
                    rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
                    settle_frac, min_margin, t_ref,
                    metrics_out, bits_out, head_out, levels_out, status):
     """Evaluate N variants (N = t_ref.shape[0]) for one driver and one edge.
 
+    topo, vals: :class:`~budget.kernels.inputs.Topology`, :class:`~budget.kernels.inputs.Values`
+    (``Netlist.topology``, ``Netlist.values``); rising: the edge is a rising one.
     rcv_out[r]: index into out_node of receiver r; rcv_vil, rcv_vih, rcv_vmax,
     rcv_vmin [V], alloc_v [V] and alloc_frac [-] (of the receiver's swing) are
     ``[n_rcv, N]``; settle_frac [-]; min_margin [V]; t_ref [s] per variant.
@@ -35,6 +33,10 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
     levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
     """
     n = t_ref.shape[0]
+    out_node = topo.out_node
+    n_nodes = topo.n_nodes
+    n_steps = vals.n_steps
+    dt = vals.dt
     n_out = out_node.shape[0]
     n_rcv = rcv_out.shape[0]
     dc = np.empty((2, n_nodes, n))
@@ -44,11 +46,7 @@ def evaluate_chunk(n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap
         b0 = blk * LANES
         bsz = min(LANES, n - b0)
         waves = np.empty((n_steps, n_out, bsz))
-        run_block(b0, bsz, (), n_nodes, cl_start, cl_moff, line_a, line_b, res_a, res_b, cap_a, cap_b,
-                  ind_a, ind_b, src_node, drv_node, out_node, dc_map, n_dc, dc_bw,
-                  tree_kind, tree_elem, tree_child, tree_parent, ring_len,
-                  line_z0, line_td, res_r, cap_c, ind_l, src_r, src_v,
-                  drv_v0, drv_v1, drv_r0, drv_r1, t_ramp, dt, n_steps, waves, dc, status)
+        run_block(b0, bsz, (), topo, vals, waves, dc, status)
         m = np.empty(N_METRICS)
         wv = np.empty((bsz, n_steps))
         for r in range(n_rcv):
