@@ -822,8 +822,10 @@ def bus_texts(draw, *, grounded=True, lossy=True):
         c_pin = draw(st.one_of(st.just(0.0), fl(0.5e-12, 5e-12)))
         p = [f'[parts.p{i}]\nrole = "{role}"\nc_pin = {_f(c_pin)}\n']
         if role == "transceiver":
-            v_low = draw(fl(-1.0, 1.0))
-            p.append(f"v_low = {_f(v_low)}\nv_high = {_f(v_low + draw(fl(0.5, 3.5)))}\n"
+            # levels straddle the 0.8/2.0 V thresholds: the loader refuses thresholds a part
+            # (or the whole bus) can never reach
+            v_low = draw(fl(-1.0, 0.5))
+            p.append(f"v_low = {_f(v_low)}\nv_high = {_f(draw(fl(2.5, 4.0)))}\n"
                      f"r_high = {_f(draw(fl(5, 60)))}\nr_low = {_f(draw(fl(5, 60)))}\n")
             can_drive.append(f"T{i}")
         p.append('vih = "2.0 V"\nvil = "0.8 V"\n')
