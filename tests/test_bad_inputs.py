@@ -15,7 +15,6 @@ import sys
 import time
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 import budget
@@ -26,17 +25,6 @@ from budget.errors import ArgumentError, BusBudgetError, DesignError
 DESIGNS = Path(__file__).parent / "designs"
 ROBUST = (DESIGNS / "robust.toml").read_text()
 SECONDS = 10.0          # per row: generous for a loaded 2-core machine; a hang or a minutes-long run fails it
-
-
-# rows not fixed yet: expected to fail (strict, so a fix shows up); this set shrinks to empty
-OPEN = {
-        "values-strings", "chunk-not-whole", "t-stop-infinite", "values-key-none",
-        "drivers-empty", "drivers-a-string"}
-
-
-def _rows(table):
-    return [pytest.param(k, id=k, marks=pytest.mark.xfail(strict=True, reason="open")) if k in OPEN
-            else pytest.param(k, id=k) for k in table]
 
 
 def _design(tmp_path, text, name="bad.toml"):
@@ -87,7 +75,7 @@ CLI_ROWS = {
 }
 
 
-@pytest.mark.parametrize("case", _rows(CLI_ROWS))
+@pytest.mark.parametrize("case", CLI_ROWS, ids=list(CLI_ROWS))
 def test_cli_bad_input_exits_2_with_a_message(case, tmp_path, capsys):
     text, argv, fragments = CLI_ROWS[case]
     cmd, rest = argv[0], argv[1:]
@@ -212,7 +200,7 @@ def robust_design():
     return budget.loads(ROBUST, source="robust.toml")
 
 
-@pytest.mark.parametrize("case", _rows(SWEEP_ROWS))
+@pytest.mark.parametrize("case", SWEEP_ROWS, ids=list(SWEEP_ROWS))
 def test_sweep_bad_argument_is_an_argument_error(case, robust_design):
     from budget.sweep import sweep
 
@@ -243,7 +231,7 @@ LOADER_ROWS = {
 }
 
 
-@pytest.mark.parametrize("case", _rows(LOADER_ROWS))
+@pytest.mark.parametrize("case", LOADER_ROWS, ids=list(LOADER_ROWS))
 def test_loader_refuses_hostile_values(case):
     text, fragment = LOADER_ROWS[case]
     with pytest.raises(DesignError) as info:
