@@ -244,4 +244,10 @@ def test_limits_are_stated_in_one_module():
                  "MAX_NAMES_LISTED"):
         assert isinstance(getattr(limits, name), int) and getattr(limits, name) > 0
         assert name in limits.__doc__
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "cli.md").read_text(encoding="utf-8")
+    section = doc.split("## Limits and refused inputs", 1)[1]
+    for name in (n for n in dir(limits) if n.startswith("MAX_")):
+        value = getattr(limits, name)
+        shown = f"{value // (1024 * 1024)} MiB" if name == "MAX_FILE_BYTES" else f"{value:,}"
+        assert f"| `{name}` | {shown} |" in section, name
     assert issubclass(ArgumentError, BusBudgetError)
