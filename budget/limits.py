@@ -13,7 +13,8 @@ MAX_TAPS = 512
     most 256 unit loads, from memory); 512 leaves room, and bounds the drivers x
     receivers x edges x corners product that ``check`` evaluates.
 MAX_NODES = 8192
-    Nodes of the flattened network (bus nodes, stub ends, pads, dies, loss sections).
+    Segments of one bus (each joins two bus nodes), so the bus nodes stay below it too;
+    checked when the design is built.
 MAX_STEPS = 5_000_000
     Time steps of one simulation (window / step).  A 40 ns window at 10 ps is 4,000
     steps; millions mean a mistyped step or window.
