@@ -23,6 +23,10 @@ MAX_BLOCK_VALUES = 64 * 1024 * 1024
     512 MiB of float64: refused before allocation rather than failing inside the kernel.
 MAX_MONTE_CARLO = 1_000_000
     Random variants of one ``check --monte-carlo`` run.
+MAX_BATCH_VARIANTS = 10_000_000
+    Variants of one ``bb_batch`` call from C (n_variants x n_paths doubles read from the
+    caller's buffer): a count beyond it is a caller's bug, refused with BB_ERR_SIZE
+    before the buffer is touched.
 MAX_NAMES_LISTED = 12
     Names listed in one error message (allowed keys, nodes, taps); the rest is "...".
 """
@@ -34,6 +38,7 @@ MAX_NODES = 8192
 MAX_STEPS = 5_000_000
 MAX_BLOCK_VALUES = 64 * 1024 * 1024
 MAX_MONTE_CARLO = 1_000_000
+MAX_BATCH_VARIANTS = 10_000_000
 MAX_NAMES_LISTED = 12
 
 

@@ -251,3 +251,62 @@ def test_limits_are_stated_in_one_module():
         shown = f"{value // (1024 * 1024)} MiB" if name == "MAX_FILE_BYTES" else f"{value:,}"
         assert f"| `{name}` | {shown} |" in section, name
     assert issubclass(ArgumentError, BusBudgetError)
+
+
+# ---------------------------------------------------------------------------
+# the C library's Python layer (budget.capi; the status names of cexport/busbudget.h).  The built
+# library itself is exercised by tests/test_cexport.py; these rows need no compiler.
+
+C_OPEN_ROWS = {
+    "c-design-integer-too-big": _replace('delay = "6.7 ns/m"', "er_eff = 1" + "0" * 400),
+    "c-design-deep-nesting": ROBUST + "\n[budget.extra]\nx = " + "[" * 50_000 + "]" * 50_000 + "\n",
+}
+
+
+@pytest.mark.parametrize("case", C_OPEN_ROWS, ids=list(C_OPEN_ROWS))
+def test_c_bad_design_text_is_a_design_status(case):
+    from budget import capi
+
+    with pytest.raises(capi.CallFailed) as info:
+        capi.open_text(C_OPEN_ROWS[case], source="rig.toml")
+    assert info.value.status == "BB_ERR_DESIGN" and "rig.toml" in str(info.value)
+
+
+C_SET_ROWS = {
+    "c-set-z0-dbl-max": ("lines.l.z0", 1.7976931348623157e308),
+    "c-set-z0-denormal": ("lines.l.z0", 5e-324),
+    "c-set-length-1e300": ("segment.0.length", 1e300),
+    "c-set-delay-dbl-max": ("lines.l.delay", 1.7976931348623157e308),
+}
+
+
+@pytest.mark.parametrize("case", C_SET_ROWS, ids=list(C_SET_ROWS))
+def test_c_set_implausible_value_is_refused_at_set(case):
+    from budget import capi
+
+    path, value = C_SET_ROWS[case]
+    h = capi.open_text(ROBUST, source="rig.toml")
+    try:
+        before = capi.get_value(h, path)
+        with pytest.raises(capi.CallFailed) as info:
+            capi.set_value(h, path, value)
+        assert info.value.status == "BB_ERR_VALUE" and path in str(info.value)
+        assert len(str(info.value)) < 400
+        assert capi.get_value(h, path) == before   # the design is unchanged
+    finally:
+        capi.close(h)
+
+
+@pytest.mark.parametrize("n_paths, n_variants, fragment", [(1, 2 ** 62, "MAX_BATCH_VARIANTS"),
+                                                      (10_000, 1, "parameters")],
+                         ids=["variants-huge", "paths-too-many"])
+def test_c_batch_impossible_count_is_a_size_status(n_paths, n_variants, fragment):
+    from budget import capi
+
+    h = capi.open_text(ROBUST, source="rig.toml")
+    try:
+        with pytest.raises(capi.CallFailed) as info:
+            capi.batch_counts(h, n_paths, n_variants)
+        assert info.value.status == "BB_ERR_SIZE" and fragment in str(info.value)
+    finally:
+        capi.close(h)
