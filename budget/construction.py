@@ -20,7 +20,7 @@ import numpy as np
 
 from . import validation
 from .errors import ArgumentError, DesignError
-from .limits import MAX_NODES, MAX_TAPS, listed
+from .limits import MAX_NAME_CHARS, MAX_NODES, MAX_TAPS, listed
 from .graph import union_roots
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, ROLES, SIGNALING, TERM_KEYS,
@@ -47,6 +47,9 @@ class _Ctx:
             return None
         if not isinstance(value, str) or not value.strip():
             raise self.err(f"expected a non-empty string, got {value!r}", table, key)
+        if len(value) > MAX_NAME_CHARS:
+            raise self.err(f"a text of {len(value)} characters; at most {MAX_NAME_CHARS} "
+                           "(budget.limits.MAX_NAME_CHARS)", table, key)
         bad = next((ch for ch in value if unicodedata.category(ch) == "Cc"), None)
         if bad is not None:   # NUL, escape sequences, newlines: they corrupt reports, CSV headers and terminals
             what = "a NUL character" if bad == "\x00" else f"the control character {bad!r}"

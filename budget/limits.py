@@ -27,8 +27,12 @@ MAX_BATCH_VARIANTS = 10_000_000
     Variants of one ``bb_batch`` call from C (n_variants x n_paths doubles read from the
     caller's buffer): a count beyond it is a caller's bug, refused with BB_ERR_SIZE
     before the buffer is touched.
+MAX_NAME_CHARS = 256
+    Characters of a name or other text value of a design (bus name, tap, node, part and
+    line names); names appear in every report line and CSV header.
 MAX_NAMES_LISTED = 12
     Names listed in one error message (allowed keys, nodes, taps); the rest is "...".
+    Keys and tables shown in a message are cut at 80 characters, the reason at 1,000.
 """
 from __future__ import annotations
 
@@ -39,6 +43,7 @@ MAX_STEPS = 5_000_000
 MAX_BLOCK_VALUES = 64 * 1024 * 1024
 MAX_MONTE_CARLO = 1_000_000
 MAX_BATCH_VARIANTS = 10_000_000
+MAX_NAME_CHARS = 256
 MAX_NAMES_LISTED = 12
 
 
