@@ -49,6 +49,7 @@ from .analyses import out_of_box
 from .design_file import load, loads
 from .errors import ArgumentError, BusBudgetError, DesignError, SimulationError
 from .kernels import metrics as mk
+from .limits import MAX_BATCH_VARIANTS
 from .model import Design
 from .roles import driving_part
 from .simulate import simulate
@@ -307,6 +308,21 @@ def waveform(handle: int, driver: str, edge: int, tap: str) -> tuple[np.ndarray,
             if slot.design is design:
                 slot.waves = {(driver, edge_name): w}
     return w.t, w[tap]
+
+
+def batch_counts(handle: int, n_paths: int, n_variants: int) -> None:
+    """Refuse impossible bb_batch counts (BB_ERR_SIZE) before any C buffer is read.
+
+    n_paths is at most the number of the design's parameters (a path may appear
+    once) and n_variants at most :data:`budget.limits.MAX_BATCH_VARIANTS`.
+    """
+    n_params = len(design_of(handle).params)
+    if n_paths > n_params:
+        raise CallFailed("BB_ERR_SIZE", f"n_paths is {n_paths} but the design has {n_params} parameters "
+                                        "(each path may be given once)")
+    if n_variants > MAX_BATCH_VARIANTS:
+        raise CallFailed("BB_ERR_SIZE", f"n_variants is {n_variants}; at most {MAX_BATCH_VARIANTS} per call "
+                                        "(budget.limits.MAX_BATCH_VARIANTS): split the batch")
 
 
 def batch(handle: int, paths, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -619,6 +635,7 @@ def bind(ffi, lib) -> None:
     def bb_batch(design, n_paths, paths, n_variants, values, worst_margin, passed):
         need(paths=paths, values=values, worst_margin=worst_margin)
         design_of(design)
+        batch_counts(design, n_paths, n_variants)
         names = [text_arg(f"paths[{k}]", paths[k]) for k in range(n_paths)]
         vals = doubles(values, n_paths * n_variants).reshape(n_variants, n_paths).copy()
         worst, ok = batch(design, names, vals)
@@ -631,6 +648,6 @@ def bind(ffi, lib) -> None:
 
 __all__ = [
     "CallFailed", "CheckSummary", "open_file", "open_text", "close", "design_of", "set_value", "get_value",
-    "param_names", "tap_names", "check", "out_of_box_entries", "margin_table", "receiver_margins", "waveform", "batch",
+    "param_names", "tap_names", "check", "out_of_box_entries", "margin_table", "receiver_margins", "waveform", "batch_counts", "batch",
     "runtime_info", "last_error", "status_of", "bind",
 ]

@@ -31,6 +31,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import CaptureError, DesignError
+from .limits import listed
 
 MAX_BYTES = 512 * 1024 * 1024   # 512 MiB of text
 MAX_ROWS = 20_000_000           # samples per channel (a 20 M point scope record)
@@ -68,7 +69,7 @@ class Capture:
         try:
             return self.channels[name]
         except KeyError:
-            raise CaptureError(f"no channel {name!r}; channels are: {', '.join(self.channels)}",
+            raise CaptureError(f"no channel {name!r}; channels are: {listed(self.channels)}",
                                source=self.source) from None
 
     @classmethod

@@ -44,6 +44,7 @@ from .analyses import (DEFAULT_MAX_SIMULATIONS, DISTRIBUTIONS, MAX_CORNERS, Wors
                        default_corners, out_of_box, sample_values, varied_paths, wilson_interval)
 from .analyses import search as search_box
 from .errors import ArgumentError, DesignError
+from .limits import MAX_MONTE_CARLO
 from .kernels import metrics as mk
 from .model import Design
 from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, result_row, worst_summary
@@ -174,6 +175,9 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
         raise ArgumentError(f"nominal must be True or False, got {nominal!r}")
     if isinstance(monte_carlo, bool) or not isinstance(monte_carlo, (int, np.integer)) or monte_carlo < 0:
         raise ArgumentError(f"monte_carlo must be a whole number of samples >= 0, got {monte_carlo!r}")
+    if monte_carlo > MAX_MONTE_CARLO:
+        raise ArgumentError(f"monte_carlo (--monte-carlo) is {monte_carlo}; at most {MAX_MONTE_CARLO} samples "
+                            "(budget.limits.MAX_MONTE_CARLO)")
     if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
         raise ArgumentError(f"seed must be a non-negative integer or None, got {seed!r}")
     if distribution not in DISTRIBUTIONS:

@@ -759,7 +759,21 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+class _ClosedOutput:
+    """Stands in for a closed standard output (``busbudget check ... >&-``): writing is bad input."""
+
+    closed = False
+
+    def write(self, text):
+        raise InputError("standard output is closed; redirect it to a file or use --out/--csv FILE")
+
+    def flush(self):
+        pass
+
+
 def main(argv=None) -> int:
+    if sys.stdout is None:   # started with file descriptor 1 closed
+        sys.stdout = _ClosedOutput()
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -774,6 +788,13 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("busbudget: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:   # the reader of standard output went away (``| head``)
+        try:
+            sys.stdout = open(os.devnull, "w")   # nothing more to flush at exit
+        except OSError:
+            pass
+        print("busbudget: error: standard output was closed by its reader (broken pipe)", file=sys.stderr)
+        return EXIT_INPUT
     except Exception as exc:   # a bug: say so in one line, never as bad input
         if os.environ.get(DEBUG_ENV, "") not in ("", "0"):
             import traceback

@@ -11,6 +11,7 @@ nominal values and on the tolerance box.
 from __future__ import annotations
 
 import math
+import unicodedata
 from dataclasses import replace
 from pathlib import Path
 from typing import Mapping
@@ -19,6 +20,7 @@ import numpy as np
 
 from . import validation
 from .errors import ArgumentError, DesignError
+from .limits import MAX_NAME_CHARS, MAX_NODES, MAX_TAPS, listed
 from .graph import union_roots
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, ROLES, SIGNALING, TERM_KEYS,
@@ -45,8 +47,13 @@ class _Ctx:
             return None
         if not isinstance(value, str) or not value.strip():
             raise self.err(f"expected a non-empty string, got {value!r}", table, key)
-        if "\x00" in value:
-            raise self.err("a NUL character is not allowed here", table, key)
+        if len(value) > MAX_NAME_CHARS:
+            raise self.err(f"a text of {len(value)} characters; at most {MAX_NAME_CHARS} "
+                           "(budget.limits.MAX_NAME_CHARS)", table, key)
+        bad = next((ch for ch in value if unicodedata.category(ch) == "Cc"), None)
+        if bad is not None:   # NUL, escape sequences, newlines: they corrupt reports, CSV headers and terminals
+            what = "a NUL character" if bad == "\x00" else f"the control character {bad!r}"
+            raise self.err(f"{what} is not allowed here", table, key)
         if choices is not None and value not in choices:
             raise self.err(f"{value!r} is not one of: {', '.join(choices)}", table, key)
         return value
@@ -141,6 +148,10 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
 
     if isinstance(segments, (str, Mapping)) or not hasattr(segments, "__iter__"):
         raise c.err("use a list of segments ([[segment]] in a file)", "segment")
+    segments = list(segments)
+    if len(segments) > MAX_NODES:
+        raise c.err(f"{len(segments)} segments; busbudget takes at most {MAX_NODES} nodes "
+                    "(budget.limits.MAX_NODES)", "segment")
     seg_out = []
     for i, s in enumerate(segments):
         t = f"segment #{i + 1}"
@@ -151,7 +162,7 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
         if a == b:
             raise c.err(f"a segment must join two different nodes (both are {a!r})", t, "to")
         if ln not in lines:
-            raise c.err(f"no line type {ln!r} in [lines]; defined: {', '.join(lines) or 'none'}", t, "line")
+            raise c.err(f"no line type {ln!r} in [lines]; defined: {listed(lines) or 'none'}", t, "line")
         c.qty(s.length, "length", t, "length", f"segment.{i}.length")
         seg_out.append((a, b, ln))
 
@@ -160,6 +171,9 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
     taps = list(taps)
     if not taps:
         raise c.err("use [[tap]] (an array of tables) with at least one entry", "tap")
+    if len(taps) > MAX_TAPS:
+        raise c.err(f"{len(taps)} taps; busbudget takes at most {MAX_TAPS} taps on one bus (budget.limits.MAX_TAPS)",
+                    "tap")
     tap_out, tap_names = [], set()
     bus_nodes = {n for s in seg_out for n in s[:2]}
     for i, tp in enumerate(taps):
@@ -175,22 +189,22 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
         node = c.text(tp.node, t, "node")
         part = c.text(tp.part, t, "part")
         if part not in parts:
-            raise c.err(f"no part {part!r} in [parts]; defined: {', '.join(parts)}", t, "part")
+            raise c.err(f"no part {part!r} in [parts]; defined: {listed(parts)}", t, "part")
         if seg_out and node not in bus_nodes:
-            raise c.err(f"node {node!r} is not on any segment; bus nodes: {', '.join(sorted(bus_nodes))}", t, "node")
+            raise c.err(f"node {node!r} is not on any segment; bus nodes: {listed(sorted(bus_nodes))}", t, "node")
         stub_line = None
         if tp.stub is not None:
             stub = c.kind(tp.stub, Stub, f"{t}.stub")
             stub_line = c.text(stub.line, f"{t}.stub", "line")
             if stub_line not in lines:
-                raise c.err(f"no line type {stub_line!r} in [lines]; defined: {', '.join(lines) or 'none'}",
+                raise c.err(f"no line type {stub_line!r} in [lines]; defined: {listed(lines) or 'none'}",
                             f"{t}.stub", "line")
             c.qty(stub.length, "length", f"{t}.stub", "length", f"tap.{name}.stub.length")
         tap_out.append((name, node, part, stub_line))
     if not seg_out:
         nodes = {tp[1] for tp in tap_out}
         if len(nodes) > 1:
-            raise c.err(f"taps sit on {len(nodes)} different nodes ({', '.join(sorted(nodes))}) but no "
+            raise c.err(f"taps sit on {len(nodes)} different nodes ({listed(sorted(nodes))}) but no "
                         "[[segment]] joins them", "segment")
         bus_nodes = nodes
     else:
@@ -211,14 +225,14 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
         if typ == "series":
             tap = c.text(tm.tap, t, "tap")
             if tap not in tap_names:
-                raise c.err(f"no tap named {tap!r}; taps: {', '.join(x[0] for x in tap_out)}", t, "tap")
+                raise c.err(f"no tap named {tap!r}; taps: {listed(x[0] for x in tap_out)}", t, "tap")
             if tap in series_taps:
                 raise c.err(f"tap {tap!r} already has a series termination", t, "tap")
             series_taps.add(tap)
         else:
             node = c.text(tm.node, t, "node")
             if node not in bus_nodes:
-                raise c.err(f"node {node!r} does not exist; bus nodes: {', '.join(sorted(bus_nodes))}", t, "node")
+                raise c.err(f"node {node!r} does not exist; bus nodes: {listed(sorted(bus_nodes))}", t, "node")
         for k, dim in keys.items():
             if dim is not None:
                 c.qty(getattr(tm, k), dim, t, k, f"termination.{i}.{k}")
@@ -254,7 +268,7 @@ def _check_connected(c: _Ctx, segments, nodes):
         groups.setdefault(r, []).append(n)
     if len(groups) > 1:
         parts = sorted((sorted(g) for g in groups.values()), key=len)
-        raise c.err(f"the segments form {len(groups)} separate pieces; nodes {', '.join(parts[0])} are not "
+        raise c.err(f"the segments form {len(groups)} separate pieces; nodes {listed(parts[0])} are not "
                     "connected to the rest", "segment")
 
 

@@ -42,6 +42,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import ArgumentError
+from .limits import listed
 
 SCHEMA = "busbudget.correlate/1"
 DEFAULT_TOLERANCES = {"level": 0.03, "voltage": 0.05, "time": 0.10}
@@ -111,7 +112,7 @@ def correlate(design, capture, driver: str, edge: str, *, channels: dict | None 
     tol = dict(DEFAULT_TOLERANCES)
     for k, x in (tolerances or {}).items():
         if k not in tol:
-            raise ArgumentError(f"unknown tolerance {k!r}; tolerances are: {', '.join(tol)}")
+            raise ArgumentError(f"unknown tolerance {k!r}; tolerances are: {listed(tol)}")
         if x is None:
             continue
         if not (math.isfinite(x) and x >= 0):

@@ -9,16 +9,17 @@ as this reader does.
 """
 from __future__ import annotations
 
+import os
+import stat
 import tomllib
 from pathlib import Path
 
 from .errors import DesignError
+from .limits import MAX_FILE_BYTES   # re-exported here, where it always was
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, TERM_KEYS, Budget, Bus,
     Design, Edge, LineType, Part, RefLoad, Segment, Stub, Tap, Termination,
 )
-
-MAX_FILE_BYTES = 16 * 1024 * 1024   # a design file is kilobytes; refuse reading devices or huge files whole
 
 _PART_BASE = {"role", "ref_load", *PART_COMMON}
 _SCHEMA = {
@@ -60,6 +61,9 @@ def load(path) -> Design:
     """Load and validate a design file; errors name the file, table and key."""
     path = Path(path)
     try:
+        if not stat.S_ISREG(os.stat(path).st_mode):   # before open(): opening a fifo would wait for a writer
+            raise DesignError("not a regular file (a device, fifo or directory); give a design file",
+                              source=str(path))
         with open(path, "rb") as f:
             data = f.read(MAX_FILE_BYTES + 1)
     except OSError as exc:

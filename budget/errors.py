@@ -24,12 +24,18 @@ class DesignError(BusBudgetError, ValueError):
         self.table = table
         self.key = key
         self.reason = message
-        where = source
+        where = _short(source, 200)
         if table is not None:
-            where += f": [{table}]"
+            where += f": [{_short(table, 80)}]"
         if key is not None:
-            where += f" {key}"
-        super().__init__(f"{where}: {message}")
+            where += f" {_short(key, 80)}"
+        super().__init__(f"{where}: {_short(message, 1000)}")
+
+
+def _short(text, limit: int) -> str:
+    """``text`` as shown in a message: at most ``limit`` characters (a hostile key may be megabytes)."""
+    text = str(text)
+    return text if len(text) <= limit else text[:limit] + f"... ({len(text)} characters)"
 
 
 class ArgumentError(BusBudgetError, ValueError):

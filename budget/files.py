@@ -2,21 +2,44 @@
 from __future__ import annotations
 
 import os
+import stat
 import tempfile
 from pathlib import Path
 
 from .errors import ArgumentError
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def write_atomically(path, write, *, binary: bool = False) -> None:
     """Call ``write(file)`` on a temporary file next to ``path``, then rename it into place.
 
-    Raises ArgumentError (naming the path) for a missing folder, a directory
-    target or a failed write (permissions, disk full); nothing is left at ``path`` or beside it if ``write`` fails.
+    The file gets mode 0666 & ~umask, as any ordinarily created file.  An existing
+    ``path`` must be a regular file: a symbolic link, a device node, a fifo, a socket
+    or a directory is refused (never followed, never replaced).  Raises ArgumentError
+    (naming the path) for those, a missing folder or a failed write (permissions, disk
+    full); nothing is left at ``path`` or beside it if ``write`` fails.
     """
     target = Path(path)
-    if target.is_dir():
-        raise ArgumentError(f"{path}: is a directory")
+    try:
+        st = os.lstat(target)
+    except FileNotFoundError:
+        st = None
+    except OSError as exc:
+        raise ArgumentError(f"{path}: cannot write the file ({exc.strerror or exc})") from None
+    if st is not None:
+        if stat.S_ISDIR(st.st_mode):
+            raise ArgumentError(f"{path}: is a directory")
+        if stat.S_ISLNK(st.st_mode):
+            raise ArgumentError(f"{path}: is a symbolic link; refusing to replace it or write through it "
+                                "(give the real path)")
+        if not stat.S_ISREG(st.st_mode):
+            raise ArgumentError(f"{path}: exists and is not a regular file (a device, fifo or socket); "
+                                "refusing to replace it")
     parent = target.parent if str(target.parent) else Path(".")
     if not parent.is_dir():
         raise ArgumentError(f"{path}: the folder {parent} does not exist")
@@ -25,6 +48,7 @@ def write_atomically(path, write, *, binary: bool = False) -> None:
     except OSError as exc:
         raise ArgumentError(f"{path}: cannot write the file ({exc.strerror or exc})") from None
     try:
+        os.fchmod(fd, 0o666 & ~_umask())
         with (os.fdopen(fd, "wb") if binary else os.fdopen(fd, "w", newline="")) as fh:
             write(fh)
         os.replace(tmp, target)

@@ -76,6 +76,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import ArgumentError, CaptureError
+from .limits import listed
 from .kernels import metrics as mk
 
 SCHEMA = "busbudget.judge/1"
@@ -177,10 +178,10 @@ def map_channels(design, capture, driver: str, channels: dict | None):
     for col, tap in channels.items():
         if col not in capture.channels:
             raise CaptureError(f"--channel {col}={tap}: no column {col!r}; columns are: "
-                               f"{', '.join(capture.names)}", source=capture.source)
+                               f"{listed(capture.names)}", source=capture.source)
         if tap not in taps:
             raise ArgumentError(f"--channel {col}={tap}: unknown tap {tap!r}; taps are: "
-                                f"{', '.join(design.tap_names)}")
+                                f"{listed(design.tap_names)}")
     mapping = {}
     for col in capture.names:
         if col in channels:
@@ -200,8 +201,8 @@ def map_channels(design, capture, driver: str, channels: dict | None):
                                 f"(role {design.parts[design.tap(tap).part].role!r})")
     ignored = [c for c in capture.names if c not in mapping]
     if not receivers:
-        raise CaptureError(f"no channel maps to a receiving tap: columns are {', '.join(capture.names)}, taps "
-                           f"are {', '.join(design.tap_names)}; name the columns like taps or map them with "
+        raise CaptureError(f"no channel maps to a receiving tap: columns are {listed(capture.names)}, taps "
+                           f"are {listed(design.tap_names)}; name the columns like taps or map them with "
                            "--channel COLUMN=TAP", source=capture.source)
     return receivers, drv_col, ignored
 

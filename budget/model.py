@@ -41,6 +41,7 @@ import numpy as np
 
 from . import validation
 from .errors import ArgumentError, DesignError
+from .limits import listed
 from .units import parse_quantity
 from .validation import C0, RuleFailed
 
@@ -423,7 +424,7 @@ class Design:
         for t in self.taps:
             if t.name == name:
                 return t
-        raise ArgumentError(f"unknown tap {name!r}; taps are: {', '.join(t.name for t in self.taps)}")
+        raise ArgumentError(f"unknown tap {name!r}; taps are: {listed(t.name for t in self.taps)}")
 
     @property
     def tap_names(self) -> tuple[str, ...]:

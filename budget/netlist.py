@@ -33,6 +33,7 @@ import numpy as np
 
 from .edges import EDGES, FALL, RISE, ramp_time
 from .errors import ArgumentError, DesignError
+from .limits import MAX_BLOCK_VALUES, MAX_STEPS, listed
 from .graph import union_roots
 from .kernels.inputs import Topology, Values
 from .line_model import (LOSS_SECTION_FRACTION, LUMPABLE_RAMP_FRACTION, STEPS_PER_LC_PERIOD,  # noqa: F401
@@ -181,7 +182,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     dpart = design.parts[dtap.part]
     if not dpart.can_drive:
         raise ArgumentError(f"tap {driver!r} cannot drive: its part {dpart.name!r} has role {dpart.role!r}; "
-                            f"taps that can drive: {', '.join(design.drivers) or 'none'}")
+                            f"taps that can drive: {listed(design.drivers) or 'none'}")
     n = design.batch_size or 1
     env = envelope if envelope is not None else tolerance_envelope(design)
     dt = float(dt if dt is not None else choose_dt(env, edge))
@@ -191,9 +192,16 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     if not (dt > 0 and t_stop > dt):
         raise ArgumentError(f"need 0 < dt < t_stop, got dt={dt:g} s, t_stop={t_stop:g} s")
     n_steps = int(math.floor(t_stop / dt + 1e-9)) + 1
-    if n_steps > 20_000_000:
-        raise ArgumentError(f"{n_steps} time steps (t_stop {t_stop:g} s / dt {dt:g} s) is too many; "
-                            "shorten bus.t_stop or lengthen bus.dt")
+    if n_steps > MAX_STEPS:
+        raise ArgumentError(f"{n_steps} time steps (t_stop {t_stop:g} s / dt {dt:g} s); at most {MAX_STEPS} steps "
+                            "(budget.limits.MAX_STEPS): shorten t_stop or lengthen dt")
+    from .kernels.transient import LANES   # variants the kernel holds at once
+
+    block = n_steps * len(design.taps) * min(n, LANES)
+    if block > MAX_BLOCK_VALUES:
+        raise ArgumentError(f"{n_steps} time steps x {len(design.taps)} taps x {min(n, LANES)} variants = {block} "
+                            f"samples in one block; at most {MAX_BLOCK_VALUES} (budget.limits.MAX_BLOCK_VALUES): "
+                            "shorten t_stop or lengthen dt")
 
     b = _Builder(n)
     notes = []

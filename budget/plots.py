@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import ArgumentError
+from .limits import listed
 from .files import write_atomically
 
 FORMATS = (".png", ".svg", ".pdf")
@@ -98,7 +99,7 @@ def waveform_figure(design, driver: str, edge: str, *, receivers=None, corners: 
         receivers = all_rcv
     for r in receivers:
         if r not in all_rcv:
-            raise ArgumentError(f"{r!r} is not a receiver for driver {driver}; receivers: {', '.join(all_rcv)}")
+            raise ArgumentError(f"{r!r} is not a receiver for driver {driver}; receivers: {listed(all_rcv)}")
     if not receivers:
         raise ArgumentError(f"no receiver to show for driver {driver}")
 

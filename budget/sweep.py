@@ -118,9 +118,17 @@ class SweepResult:
 def _as_values(design: Design, values: Mapping[str, Sequence[float]] | None):
     if not values:
         return {}, 1
+    if not isinstance(values, Mapping):
+        raise ArgumentError(f"values must be a mapping of dotted path -> 1-D array, got {type(values).__name__}")
     out, n = {}, None
     for path, arr in values.items():
-        a = np.asarray(arr, dtype=float)
+        if not isinstance(path, str):
+            raise ArgumentError(f"values: keys must be dotted parameter paths (strings), got {path!r}")
+        try:
+            a = np.asarray(arr, dtype=float)
+        except (TypeError, ValueError, OverflowError):
+            raise ArgumentError(f"values[{path!r}] must be numbers in SI units (use Design.with_values for "
+                                "unit strings)") from None
         if a.ndim != 1:
             raise ArgumentError(f"values[{path!r}] must be a 1-D array, got shape {a.shape}")
         if n is not None and a.shape[0] != n:
@@ -279,13 +287,30 @@ def sweep(design: Design, values: Mapping[str, Sequence[float]] | None = None, *
             raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {e!r}")
     if not edges:
         raise ArgumentError("edges is empty")
-    drivers = tuple(drivers) if drivers is not None else design.drivers
-    if not drivers:
-        raise ArgumentError("the design has no tap whose part can drive")
+    if isinstance(edges, str):
+        raise ArgumentError(f"edges must be a list of edges, got the string {edges!r}")
+    if drivers is None:
+        drivers = design.drivers
+        if not drivers:
+            raise ArgumentError("the design has no tap whose part can drive")
+    else:
+        if isinstance(drivers, str) or not hasattr(drivers, "__iter__"):
+            raise ArgumentError(f"drivers must be a list of tap names, got {drivers!r}")
+        drivers = tuple(drivers)
+        if not drivers:
+            raise ArgumentError("drivers is empty: give at least one tap name, or None for every driver")
     for d in drivers:
+        if not isinstance(d, str):
+            raise ArgumentError(f"drivers: expected tap names, got {d!r}")
         driving_part(design, d)
-    if chunk < 1:
-        raise ArgumentError(f"chunk must be a positive number of variants, got {chunk!r}")
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise ArgumentError(f"chunk must be a positive whole number of variants, got {chunk!r}")
+    for name, x in (("dt", dt), ("t_stop", t_stop)):
+        if x is None:
+            continue
+        if isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating)) \
+                or not math.isfinite(x) or x <= 0:
+            raise ArgumentError(f"{name} must be a finite positive time in seconds (or None), got {x!r}")
     values, n = _as_values(design, values)
     edges = tuple(edges)
     receivers = design.receivers

@@ -284,7 +284,8 @@ int bb_waveform(bb_handle design, const char *driver, int edge, const char *tap,
    the same values by the discretisation (well below the accuracy target).
    The design itself is not changed.
    Returns BB_OK (every variant passes), BB_FAIL (at least one fails),
-   BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_SIZE (n_paths or n_variants is 0),
+   BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_SIZE (n_paths or n_variants is 0, n_paths more than the design's
+   parameters, n_variants above 10,000,000: budget.limits.MAX_BATCH_VARIANTS),
    BB_ERR_PATH, BB_ERR_VALUE, BB_ERR_ARGUMENT (a path given twice),
    BB_ERR_SIMULATION. */
 int bb_batch(bb_handle design, size_t n_paths, const char *const *paths,
