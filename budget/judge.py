@@ -122,8 +122,10 @@ def first_crossing(t, x, level):
 
 
 def ramp_duration(design, edge: str) -> float:
-    """0-100 % duration [s] of the driver's ramp (10-90 % time / 0.8)."""
-    return float(design.edge.rise if edge == "rise" else design.edge.fall) / 0.8
+    """0-100 % duration [s] of the driver's ramp (:func:`budget.edges.ramp_time`, one design)."""
+    from .edges import ramp_time
+
+    return float(ramp_time(design, edge))
 
 
 @dataclass
