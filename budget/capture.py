@@ -26,11 +26,11 @@ from __future__ import annotations
 import io
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
 from .errors import CaptureError, DesignError
+from .files import read_regular_file
 from .limits import listed
 
 MAX_BYTES = 512 * 1024 * 1024   # 512 MiB of text
@@ -149,18 +149,9 @@ def read_capture(path_or_text, *, source: str | None = None) -> Capture:
         if len(text) > MAX_BYTES:
             raise CaptureError(f"{len(text)} characters, more than the {MAX_BYTES} allowed", source=src)
     else:
-        p = Path(path_or_text)
         src = source or str(path_or_text)
-        try:
-            size = p.stat().st_size
-            if p.is_dir():
-                raise CaptureError("is a directory", source=src)
-            if size > MAX_BYTES:
-                raise CaptureError(f"{size} bytes, more than the {MAX_BYTES} allowed (decimate the record first)",
-                                   source=src)
-            raw = p.read_bytes()
-        except OSError as exc:
-            raise CaptureError(f"cannot read ({exc.strerror or exc})", source=src) from None
+        raw = read_regular_file(path_or_text, MAX_BYTES, lambda reason: CaptureError(reason, source=src),
+                                hint="decimate the record first")
         try:
             text = raw.decode("utf-8-sig")
         except UnicodeDecodeError:

@@ -9,12 +9,11 @@ as this reader does.
 """
 from __future__ import annotations
 
-import os
-import stat
 import tomllib
 from pathlib import Path
 
 from .errors import DesignError
+from .files import read_regular_file
 from .limits import MAX_FILE_BYTES   # re-exported here, where it always was
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, TERM_KEYS, Budget, Bus,
@@ -60,17 +59,8 @@ def accepted_keys() -> dict[str, set[str]]:
 def load(path) -> Design:
     """Load and validate a design file; errors name the file, table and key."""
     path = Path(path)
-    try:
-        if not stat.S_ISREG(os.stat(path).st_mode):   # before open(): opening a fifo would wait for a writer
-            raise DesignError("not a regular file (a device, fifo or directory); give a design file",
-                              source=str(path))
-        with open(path, "rb") as f:
-            data = f.read(MAX_FILE_BYTES + 1)
-    except OSError as exc:
-        raise DesignError(f"cannot read the file ({exc.strerror or exc})", source=str(path)) from None
-    if len(data) > MAX_FILE_BYTES:
-        raise DesignError(f"the file is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB; not a design file",
-                          source=str(path))
+    data = read_regular_file(path, MAX_FILE_BYTES, lambda reason: DesignError(reason, source=str(path)),
+                             hint="not a design file")
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:

@@ -1,4 +1,5 @@
-"""Writing output files so that a failure never leaves a partial file behind."""
+"""Reading input files within a size limit, and writing output files so that a failure never
+leaves a partial file behind."""
 from __future__ import annotations
 
 import os
@@ -60,3 +61,28 @@ def write_atomically(path, write, *, binary: bool = False) -> None:
         if isinstance(exc, OSError):   # disk full, permissions...: the user's environment, not a bug
             raise ArgumentError(f"{path}: cannot write the file ({exc.strerror or exc})") from None
         raise
+
+
+def read_regular_file(path, max_bytes: int, fail, *, hint: str = "") -> bytes:
+    """The bytes of the regular file ``path``, at most ``max_bytes`` of them.
+
+    ``fail(reason)`` builds the caller's error (which names the file); it is raised for
+    a directory, a device or fifo (checked before opening: opening a fifo would wait for
+    a writer, reading ``/dev/zero`` would never end), a file over ``max_bytes`` (``hint``
+    is appended to that message) and any operating-system error.
+    """
+    try:
+        st = os.stat(path)
+        if stat.S_ISDIR(st.st_mode):
+            raise fail("is a directory, not a regular file")
+        if not stat.S_ISREG(st.st_mode):
+            raise fail("not a regular file (a device or fifo)")
+        if st.st_size > max_bytes:
+            raise fail(f"{st.st_size} bytes, more than the {max_bytes} allowed" + (f" ({hint})" if hint else ""))
+        with open(path, "rb") as f:
+            data = f.read(max_bytes + 1)
+    except OSError as exc:
+        raise fail(f"cannot read the file ({exc.strerror or exc})") from None
+    if len(data) > max_bytes:   # grew while being read
+        raise fail(f"more than the {max_bytes} bytes allowed" + (f" ({hint})" if hint else ""))
+    return data

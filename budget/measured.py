@@ -45,6 +45,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .errors import DesignError
+from .files import read_regular_file
 
 MAX_VALUES_BYTES = 4 * 1024 * 1024   # a values file is a few lines, not a data dump
 
@@ -124,15 +125,8 @@ def read_values_file(path) -> list:
     """Entries of a values file (TOML for ``.toml``, else CSV ``path,value``); ValuesError naming file and line."""
     src = str(path)
     p = Path(path)
-    try:
-        if p.is_dir():
-            raise ValuesError("is a directory", source=src)
-        if p.stat().st_size > MAX_VALUES_BYTES:
-            raise ValuesError(f"more than {MAX_VALUES_BYTES} bytes; a values file holds one line per value",
-                              source=src)
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise ValuesError(f"cannot read ({exc.strerror or exc})", source=src) from None
+    raw = read_regular_file(p, MAX_VALUES_BYTES, lambda reason: ValuesError(reason, source=src),
+                            hint="a values file holds one line per value")
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:

@@ -71,6 +71,9 @@ CLI_ROWS = {
     "steps-times-taps-too-many": (ROBUST, ["waves", "--driver", "TX", "--edge", "rise", "--csv", "-",
                                            "--dt", "1 fs", "--t-stop", "19.9 ns"], ["steps", "at most"]),
     "design-is-a-device": (None, ["check", "/dev/zero"], ["/dev/zero", "not a regular file"]),
+    "values-file-is-a-device": (ROBUST, ["check", "--values", "/dev/zero"], ["/dev/zero", "not a regular file"]),
+    "capture-is-a-device": (ROBUST, ["judge", "--capture", "/dev/zero", "--driver", "TX", "--edge", "rise"],
+                            ["/dev/zero", "not a regular file"]),
     "thousand-taps-corners": (_many_taps(1000), ["check", "--corners"], ["taps", "at most"]),
 }
 
