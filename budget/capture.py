@@ -453,6 +453,7 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
     from .errors import ArgumentError
     from .kernels import metrics as mk
     from .metrics import allocation_terms, from_vector
+    from .roles import driving_part
     from .simulate import simulate
     from .sweep import t_ref_of
 
@@ -465,8 +466,7 @@ def judge_waveform(design, t, v, receiver: str, edge: str, driver: str, *, t_edg
         raise ArgumentError(f"tap {receiver!r} cannot receive (part {part.name!r} has role {part.role!r})")
     if receiver == driver:
         raise ArgumentError(f"tap {receiver!r} is the driver; judge another receiver")
-    if not design.parts[design.tap(driver).part].can_drive:
-        raise ArgumentError(f"tap {driver!r} cannot drive")
+    driving_part(design, driver)
     cap = Capture.from_arrays(t, {receiver: v}, source=source)
     t, v = cap.t, cap[receiver]
     if v_lo is None or v_hi is None:

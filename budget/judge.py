@@ -77,6 +77,7 @@ import numpy as np
 
 from .errors import ArgumentError, CaptureError
 from .limits import listed
+from .roles import driving_part
 from .kernels import metrics as mk
 
 SCHEMA = "busbudget.judge/1"
@@ -312,9 +313,7 @@ def judge_capture(design, capture, driver: str, edge: str, *, channels: dict | N
             raise ArgumentError(f"{name} must be a finite voltage >= 0, got {x!r}")
     if t_edge is not None and not math.isfinite(t_edge):
         raise ArgumentError(f"t_edge must be finite, got {t_edge!r}")
-    design.tap(driver)
-    if not design.parts[design.tap(driver).part].can_drive:
-        raise ArgumentError(f"tap {driver!r} cannot drive")
+    driving_part(design, driver)
     receivers, drv_col, ignored = map_channels(design, capture, driver, channels)
     if sim is None:
         sim = simulate(design, driver, edge)

@@ -33,7 +33,7 @@ import numpy as np
 
 from .edges import EDGES, FALL, RISE, ramp_time
 from .errors import ArgumentError, DesignError
-from .limits import MAX_BLOCK_VALUES, MAX_STEPS, listed
+from .limits import MAX_BLOCK_VALUES, MAX_STEPS
 from .graph import union_roots
 from .kernels.inputs import Topology, Values
 from .line_model import (LOSS_SECTION_FRACTION, LUMPABLE_RAMP_FRACTION, STEPS_PER_LC_PERIOD,  # noqa: F401
@@ -42,6 +42,7 @@ from .line_model import (LOSS_SECTION_FRACTION, LUMPABLE_RAMP_FRACTION, STEPS_PE
 from .line_model import vmax as _vmax
 from .line_model import vmin as _vmin
 from .model import Design
+from .roles import driving_part
 
 # Re-exported for the modules that import them from here.
 __all__ = ["EDGES", "RISE", "FALL", "Netlist", "choose_dt", "default_t_stop", "flatten", "line_delays",
@@ -178,11 +179,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     """
     if edge not in EDGES:
         raise ArgumentError(f"edge must be one of {', '.join(EDGES)}, got {edge!r}")
-    dtap = design.tap(driver)
-    dpart = design.parts[dtap.part]
-    if not dpart.can_drive:
-        raise ArgumentError(f"tap {driver!r} cannot drive: its part {dpart.name!r} has role {dpart.role!r}; "
-                            f"taps that can drive: {listed(design.drivers) or 'none'}")
+    dpart = driving_part(design, driver)
     n = design.batch_size or 1
     env = envelope if envelope is not None else tolerance_envelope(design)
     dt = float(dt if dt is not None else choose_dt(env, edge))

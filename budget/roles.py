@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 from .errors import ArgumentError
+from .limits import listed
 
 
 def driving_part(design, driver: str):
@@ -12,7 +13,7 @@ def driving_part(design, driver: str):
     part = design.parts[design.tap(driver).part]
     if not part.can_drive:
         raise ArgumentError(f"tap {driver!r} cannot drive: its part {part.name!r} has role {part.role!r}; "
-                            f"taps that can drive: {', '.join(design.drivers) or 'none'}")
+                            f"taps that can drive: {listed(design.drivers) or 'none'}")
     return part
 
 
