@@ -460,3 +460,112 @@ def test_bad_along_requests_exit_2_and_write_nothing(capsys, tmp_path, args, mes
     err = capsys.readouterr().err
     assert message in err, err
     assert list(tmp_path.iterdir()) == []
+
+
+# ---- properties (hypothesis): causality inside every line ---------------------------------
+
+def _bus_distances(design, driver, allowance):
+    """Least sum of max(TD - allowance, 0) [s] from the driver's die to every bus node (Dijkstra over the
+    segments in both directions, entered through the driver's stub; lumped parts add no delay)."""
+    import heapq
+
+    def late(td):
+        return max(td - allowance, 0.0)
+
+    adj = {}
+    for s in design.segments:
+        w = late(float(design.lines[s.line].delay * s.length))
+        adj.setdefault(s.a, []).append((s.b, w))
+        adj.setdefault(s.b, []).append((s.a, w))
+    dtap = design.tap(driver)
+    start = late(float(design.lines[dtap.stub.line].delay * dtap.stub.length)) if dtap.stub else 0.0
+    dist = {dtap.node: start}
+    heap = [(start, dtap.node)]
+    while heap:
+        x, n = heapq.heappop(heap)
+        if x > dist[n]:
+            continue
+        for m, w in adj.get(n, []):
+            if x + w < dist.get(m, math.inf):
+                dist[m] = x + w
+                heapq.heappush(heap, (x + w, m))
+    return dist
+
+
+def _check_causality(design, driver, edge):
+    """Every point of the bus keeps its start level until a wave can have reached it (see the test)."""
+    aw = along(design, driver, edge, t_stop=6e-9)
+    allowance = 2 * aw.dt
+    dist = _bus_distances(design, driver, allowance)
+    swing = max(float(np.max(np.abs(aw.v_end - aw.v_start))), 1e-6)
+    quiet_points = 0
+    for b in aw.bands:
+        if b.kind == "pin":
+            continue
+        xi = aw.x[slice(*b.rows)] / b.length
+        line = design.lines[design.tap(b.tap).stub.line] if b.kind == "stub" else \
+            design.lines[design.segments[b.index].line]
+        td = float(line.delay) * b.length
+        d_a = dist.get(b.start, math.inf)
+        if b.kind == "stub" and b.tap == driver:
+            d_b = 0.0                                 # the driver sits at the device end of its own stub
+        else:
+            d_b = dist.get(b.end, math.inf) if b.kind == "segment" else math.inf
+        for i, f in enumerate(xi):
+            t_min = min(d_a + max(f * td - allowance, 0.0), d_b + max((1 - f) * td - allowance, 0.0))
+            quiet = aw.t < t_min
+            row = aw.v[b.rows[0] + i]
+            moved = float(np.max(np.abs(row[quiet] - row[0]), initial=0.0))
+            assert moved <= 1e-9 * swing, f"{aw.labels[b.rows[0] + i]} moved {moved:.3g} V before {t_min:.4g} s"
+            quiet_points += int(quiet.sum() > 1)
+    return quiet_points
+
+
+def _lossless(design):
+    return design.with_values({p: 0.0 for p in design.params if p.startswith("lines.") and p.endswith(".r_dc")})
+
+
+def test_causality_check_is_tight_enough_to_fail():
+    # The waves do arrive: at the far end of the 20 cm open line of the lattice test the
+    # voltage has moved by half the step within 4 steps after the bound.
+    design = budget.loads(ONE_LINE.format(window='t_stop = "3 ns"', rise="0.2 ns", rs=25, length="20 cm",
+                                          termination=""))
+    assert _check_causality(design, "TX", "rise") > 0
+    aw = along(design, "TX", "rise", t_stop=3e-9)
+    far = aw.v[aw.rows("segment a-b")][-1]
+    t_bound = 1e-9 - 2 * aw.dt
+    assert float(np.interp(t_bound + 4 * aw.dt + 0.25e-9, aw.t, far)) > 0.5 * (2 / 3)
+
+
+try:
+    from hypothesis import event, given
+    from hypothesis import strategies as st
+
+    from budget.strategies import buses
+except ImportError:     # pragma: no cover - hypothesis is a test dependency
+    given = None
+
+if given is not None:
+    @given(bus=buses(max_taps=5).flatmap(lambda d: st.tuples(st.just(d), st.sampled_from(d.drivers))),
+           edge=st.sampled_from(["rise", "fall"]))
+    def test_no_point_of_any_line_moves_before_a_wave_can_reach_it(bus, edge):
+        # Physics: a voltage change travels along a line at the line's speed; nothing inside a
+        # line moves before the shortest sum of delays from the driver to that point (lumped
+        # parts add none).  Allowance: the engine and the interior interpolation read up to two
+        # samples newer than a delay (4-point stencil), so each line may bring its first tiny
+        # precursor two steps early -- the bound is the least sum of max(TD - 2 dt, 0).  Lossless
+        # lines only (a lossy line is several sections, each with that allowance).
+        design, driver = bus
+        event(f"points with a quiet time: {'some' if _check_causality(_lossless(design), driver, edge) else 'none'}")
+
+
+def test_sizes_beyond_the_block_limit_are_refused_before_the_run(monkeypatch):
+    import budget.along as mod
+    from budget.errors import ArgumentError
+
+    design = budget.example("short-bus")
+    monkeypatch.setattr(mod, "MAX_BLOCK_VALUES", 10_000)
+    with pytest.raises(ArgumentError, match=r"MAX_BLOCK_VALUES"):
+        along(design, "CTRL", "rise")
+    with pytest.raises(ArgumentError, match="points_per_step"):
+        along(budget.example("short-bus"), "CTRL", "rise", points_per_step=0)
