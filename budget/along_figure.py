@@ -6,7 +6,8 @@ daisy chain is one band; a star or tree one band per branch), bus nodes and
 the taps on them named at the left.  Bottom: one band per tap -- its stub from
 the bus node (top) to the device end, then its pin (die node) -- named with
 the tap, the driver marked.  Colour: the voltage, white at the bus's final DC
-level, red above it (overshoot), blue below; a wave shows as a slanted colour
+level, red above it (overshoot), blue below, saturating beyond COLOUR_RANGE of
+the swing; a wave shows as a slanted colour
 front, and a reflection as a front that starts at a discontinuity and runs
 back.  The thin black line is the half-swing level.
 """
@@ -22,9 +23,12 @@ from .plots import _pyplot
 
 # Points within this fraction of the swing of their final level count as settled
 # when choosing the time shown (the data keep the whole window).
-SHOWN_SETTLE_FRACTION = 0.02
+SHOWN_SETTLE_FRACTION = 0.05
 # At most this many time columns drawn (the data keep every step).
-MAX_COLUMNS = 1500
+MAX_COLUMNS = 1000
+# Colours span the final level +- this fraction of the swing (saturating beyond), so that
+# reflections of a tenth of the swing show clearly next to the edge itself.
+COLOUR_RANGE = 0.4
 CMAP = "RdBu_r"
 FRONT = "#000000"
 
@@ -62,7 +66,10 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
     t_ns = waves.t[cols] * 1e9
 
     centre = float(np.median(waves.v_end))
+    swing = float(np.max(np.abs(waves.v_end - waves.v_start)))
     half = float(np.max(np.abs(waves.v[:, :n_show] - centre))) or 1.0
+    if swing > 0:
+        half = min(half, COLOUR_RANGE * swing)
     norm = Normalize(vmin=centre - half, vmax=centre + half)
     v_front = float(np.median(0.5 * (waves.v_start + waves.v_end)))
 
@@ -75,8 +82,10 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
         taps_at.setdefault(tap.node, []).append(tap.name)
 
     n_taps = len(design.taps)
-    total = sum(r.offsets[-1] for r in runs) * 1e3 or 1.0
-    gap = 0.06 * total
+    total_m = sum(r.offsets[-1] for r in runs)
+    k, unit = (1e3, "mm") if total_m < 2.0 else (1.0, "m")     # metres for a field bus, mm for a board
+    total = total_m * k or 1.0
+    gap = 0.1 * total
     fig, (ax_t, ax_p) = plt.subplots(2, 1, figsize=(9.5, 4.2 + 0.32 * n_taps + 0.12 * len(runs)), sharex=True, layout="constrained",
                                      gridspec_kw={"height_ratios": [1.0 + 0.1 * len(runs), 0.35 + 0.07 * n_taps]})
     mesh = None
@@ -91,7 +100,7 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
         if y.size == 1:
             y, c = np.array([y[0] - 0.5, y[0] + 0.5]), np.vstack([c, c])
         tt, yy = np.meshgrid(t_ns, y)
-        mesh = ax.pcolormesh(tt, yy, c, cmap=CMAP, norm=norm, shading="gouraud", rasterized=True)
+        mesh = ax.pcolormesh(tt, yy, c, cmap=CMAP, norm=norm, shading="nearest", rasterized=True)
         if c.min() < v_front < c.max() and y.size >= 2:
             ax.contour(tt, yy, c, levels=[v_front], colors=FRONT, linewidths=0.6)
 
@@ -101,21 +110,21 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
         for (seg, rev), off in zip(run.segments, run.offsets):
             b = by_index[seg]
             r = np.arange(*b.rows)
-            x = waves.x[r] * 1e3
+            x = waves.x[r] * k
             if rev:
-                x, r = (b.length * 1e3 - x)[::-1], r[::-1]
-            draw(ax_t, base + off * 1e3 + x, r)
+                x, r = (b.length * k - x)[::-1], r[::-1]
+            draw(ax_t, base + off * k + x, r)
         for node, off in zip(run.nodes, run.offsets):
-            ticks.append(base + off * 1e3)
+            ticks.append(base + off * k)
             names = taps_at.get(node, [])
-            tick_labels.append(f"{node} [{', '.join(names)}] {off * 1e3:.4g} mm" if names
-                               else f"{node} {off * 1e3:.4g} mm")
+            tick_labels.append(f"{node} [{', '.join(names)}] {off * k:.4g} {unit}" if names
+                               else f"{node} {off * k:.4g} {unit}")
         if run is not runs[-1]:
-            ax_t.axhspan(base + run.offsets[-1] * 1e3, base + run.offsets[-1] * 1e3 + gap, color="#d9d9d9", lw=0)
-        base += run.offsets[-1] * 1e3 + gap
+            ax_t.axhspan(base + run.offsets[-1] * k, base + run.offsets[-1] * k + gap, color="#d9d9d9", lw=0)
+        base += run.offsets[-1] * k + gap
     ax_t.set_ylim(base - gap, 0)
     ax_t.set_yticks(ticks, tick_labels, fontsize=7)
-    ax_t.set_ylabel("along the trunk [mm]", fontsize=8)
+    ax_t.set_ylabel(f"along the trunk [{unit}]", fontsize=8)
     ax_t.set_title("trunk: bus node [taps on it] and distance from the start of each chain", fontsize=8, loc="left")
 
     # -- taps panel: stub (bus node at the top) then pin ---------------------------------
@@ -130,7 +139,7 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
             p0 = i
         pr = np.arange(*pins[tap.name].rows)
         tt, yy = np.meshgrid(t_ns, [p0, i + 1.0])
-        ax_p.pcolormesh(tt, yy, np.vstack([waves.v[pr][:, cols]] * 2), cmap=CMAP, norm=norm, shading="gouraud",
+        ax_p.pcolormesh(tt, yy, np.vstack([waves.v[pr][:, cols]] * 2), cmap=CMAP, norm=norm, shading="nearest",
                         rasterized=True)
         if i:
             ax_p.axhline(i, color="white", lw=1.2)
@@ -146,8 +155,9 @@ def along_figure(design, driver: str, edge: str, *, t_max: float | None = None, 
         ax.tick_params(labelsize=7)
         ax.set_xlim(t_ns[0], t_ns[-1])
 
-    cb = fig.colorbar(mesh, ax=[ax_t, ax_p], fraction=0.035, pad=0.02)
-    cb.set_label(f"voltage [V] (white: final DC level {centre:.3g} V)", fontsize=8)
+    cb = fig.colorbar(mesh, ax=[ax_t, ax_p], fraction=0.035, pad=0.02, extend="both")
+    cb.set_label(f"voltage [V]\nwhite: final DC level {centre:.3g} V; saturates beyond "
+                 f"+-{100 * COLOUR_RANGE:.0f} % of the swing", fontsize=8)
     cb.ax.tick_params(labelsize=7)
     ax_t.legend([Line2D([], [], color=FRONT, lw=0.8)], [f"half-swing level {v_front:.3g} V"], fontsize=7,
                 loc="lower right", framealpha=0.8)

@@ -393,6 +393,13 @@ def test_trunk_runs_cut_a_star_at_its_junction_and_keep_a_chain_whole():
     assert math.isclose(chain[0].offsets[-1], 7 * 0.025)
     lossy = trunk_runs(budget.loads(LOSSY_LUMPED))          # n0-n1, then n1 <- n2 walked backwards
     assert len(lossy) == 1 and lossy[0].nodes == ("n0", "n1", "n2") and lossy[0].segments[1] == (1, True)
+    # a third segment at n1 makes it a junction: three branches, each from an end or the junction
+    star = budget.loads(LOSSY_LUMPED.replace('[[tap]]\nname = "A"', '[[segment]]\nfrom = "n1"\nto = "n3"\n'
+                                             'line = "card"\nlength = "3 cm"\n\n[[tap]]\nname = "A"', 1))
+    runs = trunk_runs(star)
+    assert sorted(r.nodes for r in runs) == [("n0", "n1"), ("n1", "n2"), ("n1", "n3")]
+    aw = along(star, "C", "rise")
+    assert [b.name for b in aw.bands if b.kind == "segment"] == ["segment n0-n1", "segment n2-n1", "segment n1-n3"]
 
 
 # ---- exports and the command line --------------------------------------------------------
@@ -569,3 +576,27 @@ def test_sizes_beyond_the_block_limit_are_refused_before_the_run(monkeypatch):
         along(design, "CTRL", "rise")
     with pytest.raises(ArgumentError, match="points_per_step"):
         along(budget.example("short-bus"), "CTRL", "rise", points_per_step=0)
+
+
+def test_figure_names_nodes_taps_and_chains():
+    pytest.importorskip("matplotlib")
+    import matplotlib.pyplot as plt
+
+    from budget.along_figure import along_figure, shown_window
+
+    design = budget.example("backplane")
+    aw = along(design, "SLOT2", "rise")
+    fig = along_figure(design, "SLOT2", "rise", waves=aw)
+    trunk, taps = fig.axes[0], fig.axes[1]
+    labels = [t.get_text() for t in trunk.get_yticklabels()]
+    assert labels[0] == "s1 [SLOT1] 0 mm" and labels[-1] == "s8 [SLOT8] 175 mm"
+    tap_labels = [t.get_text() for t in taps.get_yticklabels()]
+    assert tap_labels[1] == "SLOT2 (driver): stub 10 mm, pin" and len(tap_labels) == 8
+    # drawn until the whole bus has settled to within 5 % of the swing (plus 10 %), inside the window
+    t_show = shown_window(aw)
+    assert 0 < t_show <= aw.t[-1]
+    assert trunk.get_xlim()[1] == pytest.approx(t_show * 1e9, rel=0.01)
+    late = aw.t > t_show
+    swing = float(np.max(np.abs(aw.v_end - aw.v_start)))
+    assert np.max(np.abs(aw.v[:, late] - aw.v_end[:, None])) <= 0.05 * swing
+    plt.close(fig)
