@@ -193,13 +193,15 @@ def _line_pieces(design: Design, net) -> list:
 # -- the run --------------------------------------------------------------------------
 
 def _record_every_node(net):
-    """Run the engine on variant 0 of ``net`` recording every node: (v_rec [n_steps, n_nodes] [V],
-    dc [2, n_nodes] [V]).  Only the recorded-node list differs from an ordinary run."""
-    topo = net.topology._replace(out_node=np.arange(net.n_nodes, dtype=np.int64))
-    waves = np.empty((net.n_steps, net.n_nodes, 1))
-    dc = np.empty((2, net.n_nodes, 1))
-    status = np.empty(1, dtype=np.int64)
-    tk.run_block(0, 1, (0,), topo, net.values, waves, dc, status)
+    """Run the engine on ``net`` (one variant) recording every node: (v_rec [n_steps, n_nodes] [V],
+    dc [2, n_nodes] [V], status [1]).  The same call as every simulation
+    (:func:`budget.simulate.run_netlist`); only the list of recorded nodes differs."""
+    from dataclasses import replace
+
+    from .simulate import run_netlist
+
+    every = replace(net, topology=net.topology._replace(out_node=np.arange(net.n_nodes, dtype=np.int64)))
+    waves, dc, status = run_netlist(every)
     return waves[:, :, 0], dc[:, :, 0], status
 
 
