@@ -35,8 +35,8 @@ FRONT = "#000000"
 
 def shown_window(waves: AlongWaves) -> float:
     """Time [s] up to which the picture is drawn by default: 10 % after the last time any point of the
-    bus is further than SHOWN_SETTLE_FRACTION of the swing from its final DC level, at least 4 ramps
-    of the time step's worth (20 steps) and at most the whole window."""
+    bus is further than SHOWN_SETTLE_FRACTION of the swing from its final DC level, at least 20 time
+    steps and at most the whole window."""
     swing = float(np.max(np.abs(waves.v_end - waves.v_start))) or 1.0
     off = np.abs(waves.v - waves.v_end[:, None]) > SHOWN_SETTLE_FRACTION * swing
     cols = np.flatnonzero(off.any(axis=0))
