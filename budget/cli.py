@@ -140,6 +140,10 @@ def cmd_plot(args) -> int:
 
     if Path(args.out).suffix.lower() not in plots.FORMATS:
         raise InputError(f"{args.out}: unknown picture format; use one of {', '.join(plots.FORMATS)}")
+    if args.along:
+        return _plot_along(args)
+    if args.data or args.t_stop is not None:
+        raise InputError(f"{'--data' if args.data else '--t-stop'} goes with --along (the space-time picture)")
     design = load_design(args.design)
     if args.map:
         report = _run_check(args, design)
@@ -152,6 +156,38 @@ def cmd_plot(args) -> int:
                                     corners=not args.no_corners)
     plots.save(fig, args.out)
     print(f"wrote {args.out}")
+    return EXIT_PASS
+
+
+def _plot_along(args) -> int:
+    """plot --along: the voltage along every segment, stub and pin against time (budget.along)."""
+    from . import plots
+    from .along import along
+    from .along_figure import along_figure
+
+    if args.map:
+        raise InputError("--along and --map are two different pictures; give one of them")
+    if args.receiver or args.no_corners:
+        raise InputError(f"{'--receiver' if args.receiver else '--no-corners'} belongs to the waveform plot, "
+                         "not to --along (which shows every tap)")
+    if not args.driver or not args.edge:
+        raise InputError("plot --along needs --driver and --edge")
+    if args.data and Path(args.data).suffix.lower() not in (".json", ".csv"):
+        raise InputError(f"{args.data}: unknown data format; use .json or .csv")
+    for target in (args.out, args.data):
+        if target and not Path(target).resolve().parent.is_dir():
+            raise InputError(f"{target}: the folder does not exist")
+    design = load_design(args.design)
+    waves = along(design, args.driver, args.edge, t_stop=args.t_stop)
+    fig = along_figure(design, args.driver, args.edge, waves=waves,
+                       t_max=float(waves.t[-1]) if args.t_stop is not None else None)
+    plots.save(fig, args.out)
+    print(f"wrote {args.out}")
+    if args.data:
+        waves.write(args.data)
+        print(f"wrote {args.data}")
+    for note in waves.notes:
+        print(f"note: {note}", file=sys.stderr)
     return EXIT_PASS
 
 
@@ -638,7 +674,9 @@ def build_parser() -> argparse.ArgumentParser:
         description="busbudget plot DESIGN --driver TAP --edge rise|fall --out FILE.png: pin waveforms at every "
                     "receiver with the threshold region shaded, every tolerance corner in grey and the worst "
                     "one highlighted.  busbudget plot DESIGN --map --out FILE.png [--corners ...]: "
-                    "the worst margin of every driver x receiver pair.")
+                    "the worst margin of every driver x receiver pair.  busbudget plot DESIGN --along --driver TAP "
+                    "--edge rise|fall --out FILE.png [--data FILE.json]: the voltage along every segment, stub "
+                    "and pin against time.")
     pl.add_argument("design", help="design file, or example:NAME")
     pl.add_argument("--out", required=True, metavar="FILE", help="output picture (.png, .svg or .pdf)")
     pl.add_argument("--driver", help="name of the driving tap (waveform plot)")
@@ -646,6 +684,14 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--receiver", help="show only this receiver (waveform plot)")
     pl.add_argument("--no-corners", action="store_true", help="waveform plot: nominal design only")
     pl.add_argument("--map", action="store_true", help="driver x receiver map of the worst margins")
+    pl.add_argument("--along", action="store_true",
+                    help="space-time picture: the voltage along every segment, stub and pin against time for "
+                         "--driver and --edge")
+    pl.add_argument("--data", metavar="FILE", default=None,
+                    help="with --along: also write its arrays to FILE (.json, schema busbudget.along/1, or .csv)")
+    pl.add_argument("--t-stop", type=_seconds, default=None,
+                    help="with --along: window simulated and drawn, e.g. '20 ns' (default: automatic, drawn until "
+                         "the bus settles)")
     _analysis_options(pl)
     pl.set_defaults(func=cmd_plot)
 
