@@ -221,7 +221,9 @@ int bb_close(bb_handle design);
 int bb_set(bb_handle design, const char *path, double value);
 
 /* Like bb_set() with the value as text with its unit ("37 ohm", "1.8 pF",
-   "6.7 ns/m"; UTF-8, NUL-terminated) or a plain number in SI base units.
+   "6.7 ns/m"; UTF-8, NUL-terminated).  Text without a unit ("22.4") is
+   refused with a message saying which unit to write: give SI numbers
+   with bb_set().
    Unit names are case-insensitive where that is unambiguous (pF, pf, PF);
    "MOHM" or "mv" (milli or mega?) are refused with both readings.
    Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_PATH, BB_ERR_VALUE
