@@ -29,8 +29,9 @@
  *   - a directory for numba's compiled-kernel cache.  By default numba writes
  *     next to the package's modules; on a read-only install set
  *     NUMBA_CACHE_DIR to a writable directory before the first call (numba
- *     silently falls back to its per-user cache when NUMBA_CACHE_DIR is not
- *     writable; bb_runtime_info names the directory in use).  With a
+ *     quietly falls back to the package directory or its per-user cache when
+ *     NUMBA_CACHE_DIR is not writable; bb_runtime_info names the directory
+ *     in use).  With a
  *     warm cache the first check of a process takes one to two seconds on a
  *     small machine (interpreter start, imports, cache load; see
  *     benchmarks/c_overhead.py); with a cold cache the kernels compile first
@@ -41,9 +42,10 @@
  *   Every function returns an int status.  0 is never returned by the library
  *   itself: 0 means the embedded runtime did not start (wrong or incomplete
  *   Python environment, a package missing, no writable kernel cache; the
- *   reason is printed on stderr, one line for the whole process).  Treat 0 like an error; nothing
- *   will work in that process.  bb_last_error() and bb_runtime_info() then
- *   still fill their buffer with the reason (and return 0).
+ *   reason is printed on stderr, one line for the whole process).  Treat 0
+ *   like an error; nothing will work in that process.  bb_last_error() and
+ *   bb_runtime_info() then still fill their buffer with the reason (and
+ *   return 0).
  *   BB_OK and BB_FAIL (> 0) are successes; errors are negative.
  *   After an error, bb_last_error() gives its message (kept per thread).
  *
