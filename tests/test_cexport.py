@@ -756,6 +756,22 @@ def test_judge_and_its_record_match_python_and_the_cli(programs, tmp_path, drive
     assert cli_rec["inputs_sha256"]["--set"] == rec["inputs_sha256"]["--set"]
 
 
+def test_log_from_several_threads_keeps_every_record_whole(programs, tmp_path):
+    """4 C threads x 25 bb_log calls into one log: 100 whole records, each with its thread's numbers."""
+    log = tmp_path / "shared.jsonl"
+    out = run(programs["api_probe"], "logthreads", SHORT, log, 4, 25).stdout
+    assert out.split() == [x for i in range(4) for x in ("thread", str(i), "0")]
+    lines = log.read_bytes().split(b"\n")
+    assert lines[-1] == b"" and len(lines) == 101           # every record ends its line
+    recs = [json.loads(line) for line in lines[:-1]]
+    design = budget.load(SHORT)
+    for i in range(4):
+        mine = [r for r in recs if r["serial"] == f"T{i}"]
+        assert len(mine) == 25
+        r = sweep(design.with_values({"lines.route.z0": 44.0 + i}))
+        assert all(same_bits(min(m["margins"].values()), float(r.worst_margin[0])) for m in mine)
+
+
 # ---------------------------------------------------------------------------
 # a relocatable build: SONAME, $ORIGIN run path, pkg-config
 

@@ -13,11 +13,15 @@
  *       tolerance box, set, check, bb_log, bb_reset, check again
  *   api_probe judge  DESIGN DRIVER rise|fall RECEIVER GUARDBAND T_EDGE CAPTURE LOG SERIAL [PATH=VALUE ...]
  *       CAPTURE: a text file of "t v" lines in C99 hex floats; T_EDGE "nan" if not known
+ *   api_probe logthreads DESIGN LOG THREADS RECORDS
+ *       THREADS pthreads, each with its own handle (lines.route.z0 = 44 + thread ohm), one
+ *       bb_check and RECORDS bb_log calls into the same LOG, serial "T<thread>"
  *
  * Exit status: 0 done, 1 an unexpected status (printed), 3 the runtime did
  * not start (a call returned BB_NOT_STARTED = 0).
  */
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -338,6 +342,54 @@ static int cmd_judge(int argc, char **argv)
     return 0;
 }
 
+struct log_job {
+    const char *file, *log;
+    int index, records, status;
+};
+
+static void *log_thread(void *arg)
+{
+    struct log_job *job = arg;
+    bb_handle h;
+    bb_result r;
+    char serial[32];
+    int k, status;
+    snprintf(serial, sizeof serial, "T%d", job->index);
+    job->status = 0;
+    if ((status = bb_open_file(job->file, &h)) != BB_OK || (status = bb_set(h, "lines.route.z0", 44.0 + job->index))
+        != BB_OK || ((status = bb_check(h, &r)) != BB_OK && status != BB_FAIL)) {
+        job->status = status;
+        return NULL;
+    }
+    for (k = 0; k < job->records; k++)
+        if ((status = bb_log(h, job->log, serial)) != BB_OK)
+            job->status = status;
+    bb_close(h);
+    return NULL;
+}
+
+static int cmd_logthreads(const char *file, const char *log, int n_threads, int records)
+{
+    pthread_t tid[16];
+    struct log_job jobs[16];
+    int i, bad = 0;
+    if (n_threads < 1 || n_threads > 16)
+        return 2;
+    for (i = 0; i < n_threads; i++) {
+        jobs[i].file = file;
+        jobs[i].log = log;
+        jobs[i].index = i;
+        jobs[i].records = records;
+        pthread_create(&tid[i], NULL, log_thread, &jobs[i]);
+    }
+    for (i = 0; i < n_threads; i++) {
+        pthread_join(tid[i], NULL);
+        printf("thread %d %d\n", i, jobs[i].status);
+        bad |= jobs[i].status != 0;
+    }
+    return bad ? 1 : 0;
+}
+
 /* ---- bad input: one line per case, "case NAME STATUS MESSAGE" ---- */
 
 static void report(const char *name, int status)
@@ -553,6 +605,8 @@ int main(int argc, char **argv)
         return cmd_errors(argv[2], argv[3]);
     if (argc >= 5 && strcmp(argv[1], "rig") == 0)
         return cmd_rig(argv[2], argv[3], argv[4], argc - 5, argv + 5);
+    if (argc == 6 && strcmp(argv[1], "logthreads") == 0)
+        return cmd_logthreads(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]));
     if (argc >= 11 && strcmp(argv[1], "judge") == 0)
         return cmd_judge(argc - 2, argv + 2);
     fprintf(stderr, "usage: see the comment at the top of api_probe.c\n");
