@@ -861,7 +861,7 @@ def test_copied_libpython_without_a_standard_library_is_not_fatal(libdir, tmp_pa
     shutil.copy2(_libpython(), moved / _libpython().name)
     exe = moved / "api_probe"
     proc = subprocess.run([CC, *CFLAGS, f"-I{moved}", str(CEXPORT / "tests" / "api_probe.c"), f"-L{moved}",
-                           "-lbusbudget", f"-Wl,-rpath,{moved}", "-lm", "-o", str(exe)],
+                           "-lbusbudget", f"-Wl,-rpath,{moved}", "-pthread", "-lm", "-o", str(exe)],
                           capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     ldd = subprocess.run(["ldd", str(exe)], capture_output=True, text=True, check=True).stdout
