@@ -13,7 +13,11 @@ Measures, on the short-bus example (one driver, three receivers, both edges):
 2. a single check: bb_set + bb_check from C against Design.with_values +
    sweep in Python (the same kernel path), median time per call;
 3. a 10,000-variant batch: one bb_batch from C against one sweep(...,
-   keep="margin") in Python.
+   keep="margin") in Python;
+4. judging one captured edge (the simulated CTRL rise at MEM3 as the
+   capture): bb_judge from C against budget.judge.judge_capture in Python,
+   median time per call (each call also simulates the design for its levels
+   and window, as the CLI judge does).
 
 Both paths run numba's workqueue threading layer, the library's default
 (set NUMBA_THREADING_LAYER to compare another one on both).
@@ -111,6 +115,21 @@ def python_checks(design, n: int) -> tuple[float, float]:
     return statistics.median(per_call), total
 
 
+def python_judges(design, n: int) -> tuple[float, float]:
+    """Median time [s] of judge_capture on the simulated CTRL rise at MEM3, and the margin checksum."""
+    from budget import simulate
+    from budget.capture import Capture
+    from budget.judge import judge_capture
+    w = simulate(design, "CTRL", "rise")
+    total, per_call = 0.0, []
+    for _ in range(n):
+        t0 = time.perf_counter()
+        rep = judge_capture(design, Capture.from_arrays(w.t, {"MEM3": w["MEM3"]}), "CTRL", "rise")
+        per_call.append(time.perf_counter() - t0)
+        total += float(rep.results[0]["margin_high"])
+    return statistics.median(per_call), total
+
+
 def python_batch(design, n: int) -> tuple[float, float]:
     from budget.sweep import sweep
     values = batch_values(n)
@@ -166,8 +185,8 @@ def main(argv=None) -> int:
         py_first = statistics.median(f for f, _ in py_firsts)
         py_wall = statistics.median(w for _, w in py_firsts)
 
-        c_check = c_batch = py_check = py_batch = np.inf
-        same_check = same_batch = True
+        c_check = c_batch = py_check = py_batch = c_judge = py_judge = np.inf
+        same_check = same_batch = same_judge = True
         for _ in range(args.repeat):     # interleaved, so both paths see the same machine load
             figs, _ = run_c(exe, design_path, args.checks, args.variants)
             c_check, c_batch = min(c_check, figs["check_median"]), min(c_batch, figs["batch_seconds"])
@@ -176,6 +195,11 @@ def main(argv=None) -> int:
             py_check, py_batch = min(py_check, per_call), min(py_batch, seconds)
             same_check &= check_sum == figs["check_checksum"]
             same_batch &= batch_sum == figs["batch_checksum"]
+            c_judge = min(c_judge, figs["judge_median"])
+            per_call, judge_sum = python_judges(design.with_values({"lines.route.z0": 45.0}), args.checks)
+            py_judge = min(py_judge, per_call)
+            same_judge &= judge_sum == figs["judge_checksum"]
+            n_samples = int(figs["judge_samples"])
 
     print()
     print(f"first call in a fresh process, kernel cache warm (median of {args.fresh} processes):")
@@ -193,11 +217,14 @@ def main(argv=None) -> int:
     print(f"  {args.variants}-variant batch, C (bb_batch)        {c_batch:10.3f} s")
     print(f"  {args.variants}-variant batch, Python (sweep)      {py_batch:10.3f} s")
     print(f"  ratio C / Python                              {c_batch / py_batch:10.3f}")
+    print(f"  judge one captured edge ({n_samples} samples), C (bb_judge)  {1e3 * c_judge:8.2f} ms")
+    print(f"  judge one captured edge, Python (judge_capture)    {1e3 * py_judge:8.2f} ms")
+    print(f"  ratio C / Python                              {c_judge / py_judge:10.3f}")
     print()
     print(f"results identical to the last bit: single checks {'yes' if same_check else 'NO'}, "
-          f"batch {'yes' if same_batch else 'NO'}")
+          f"batch {'yes' if same_batch else 'NO'}, judge {'yes' if same_judge else 'NO'}")
     print("Absolute times depend on this machine and its load; compare the ratios.")
-    return 0 if (same_check and same_batch) else 1
+    return 0 if (same_check and same_batch and same_judge) else 1
 
 
 if __name__ == "__main__":

@@ -47,10 +47,13 @@ import numpy as np
 
 from .analyses import out_of_box
 from .design_file import load, loads
-from .errors import ArgumentError, BusBudgetError, DesignError, SimulationError
+from .errors import ArgumentError, BusBudgetError, CaptureError, DesignError, RecordError, SimulationError
 from .kernels import metrics as mk
+from .capture import MAX_ROWS as MAX_CAPTURE_SAMPLES
+from .capture import MIN_ROWS as MIN_CAPTURE_SAMPLES
 from .limits import MAX_BATCH_VARIANTS
 from .model import Design
+from .records import sha256_bytes, sha256_file
 from .roles import driving_part
 from .simulate import simulate
 from .sweep import SweepResult, limiting_term, sweep
@@ -94,14 +97,25 @@ class CheckSummary:
 
 
 class _Slot:
-    """One open design: the current (immutable) design and results cached for it."""
-    __slots__ = ("lock", "design", "result", "waves")
+    """One open design: the current (immutable) design, results cached for it, and what a record needs.
 
-    def __init__(self, design: Design):
+    ``opened`` is the design as opened (what :func:`reset` returns to); ``settings``
+    the ``PATH=VALUE`` lines of every value set since (one per path, the latest
+    value, in the order the paths were first set), hashed into a record like the
+    CLI's ``--set`` lines; ``design_sha256`` the SHA-256 of the design file's bytes
+    (or of the text) at open; ``last`` the last check or judge, for :func:`log`.
+    """
+    __slots__ = ("lock", "design", "result", "waves", "opened", "settings", "design_sha256", "last")
+
+    def __init__(self, design: Design, design_sha256: str | None = None):
         self.lock = threading.Lock()
         self.design = design
         self.result: SweepResult | None = None          # nominal sweep of ``design``
         self.waves: dict = {}                           # (driver, edge) -> Waveforms of ``design``
+        self.opened = design
+        self.settings: dict = {}                        # path -> "PATH=VALUE" line
+        self.design_sha256 = design_sha256
+        self.last: dict | None = None                   # {"command", "design" or "doc", "settings", ...}
 
 
 _slots: dict[int, _Slot] = {}
@@ -122,10 +136,10 @@ def _slot(handle: int) -> _Slot:
     return slot
 
 
-def _register(design: Design) -> int:
+def _register(design: Design, design_sha256: str | None = None) -> int:
     with _slots_lock:
         handle = next(_ids)
-        _slots[handle] = _Slot(design)
+        _slots[handle] = _Slot(design, design_sha256)
     return handle
 
 
@@ -140,7 +154,11 @@ def open_file(path: str) -> int:
         design = load(path)
     except DesignError as exc:
         raise CallFailed("BB_ERR_DESIGN", str(exc)) from None
-    return _register(design)
+    try:
+        digest = sha256_file(path)
+    except ArgumentError as exc:     # unreadable between the two reads
+        raise CallFailed("BB_ERR_FILE", str(exc)) from None
+    return _register(design, digest)
 
 
 def open_text(text: str, source: str = "<text from C>") -> int:
@@ -149,7 +167,7 @@ def open_text(text: str, source: str = "<text from C>") -> int:
         design = loads(text, source=source)
     except DesignError as exc:
         raise CallFailed("BB_ERR_DESIGN", str(exc)) from None
-    return _register(design)
+    return _register(design, sha256_bytes(text.encode("utf-8", errors="surrogateescape")))
 
 
 def close(handle: int) -> None:
@@ -194,6 +212,24 @@ def set_value(handle: int, path: str, value: float | str) -> None:
         except DesignError as exc:
             raise CallFailed("BB_ERR_VALUE", str(exc)) from None
         slot.design, slot.result, slot.waves = new, None, {}
+        # the line a CLI user would give as --set (float repr reads back as the same double)
+        slot.settings[path] = f"{path}={value if isinstance(value, str) else repr(float(value))}"
+
+
+def reset(handle: int) -> None:
+    """Undo every :func:`set_value` of ``handle``: back to the design as opened (nominal values)."""
+    slot = _slot(handle)
+    with slot.lock:
+        slot.design, slot.result, slot.waves, slot.settings, slot.last = slot.opened, None, {}, {}, None
+
+
+def tolerance_box(handle: int) -> list:
+    """The design's tolerance box: [(dotted path, min, max)] [SI], ``[tolerances]`` order.
+
+    The same box ``check`` varies (:attr:`budget.Design.tolerances`, absolute
+    bounds); values set since the open do not change it.
+    """
+    return [(p, float(lo), float(hi)) for p, (lo, hi) in design_of(handle).tolerances.items()]
 
 
 def get_value(handle: int, path: str) -> float:
@@ -254,11 +290,20 @@ def check(handle: int) -> CheckSummary:
     else:   # no (driver, receiver) pair at all
         drv = rcv = ""
         d_i = r_i = e_i = -1
+    _remember(handle, design, {"command": "check", "design": design})
     return CheckSummary(
         passed=bool(r.passed[0]), worst_margin=worst, driver=d_i, receiver=r_i, edge=e_i,
         n_cases=int(np.count_nonzero(valid)), n_failing=int(np.count_nonzero(bits[valid] != 0)),
         violations=int(np.bitwise_or.reduce(bits[valid], initial=0)), driver_name=drv, receiver_name=rcv,
         worst_headroom=head, worst_limit=int(limit), n_out_of_box=len(out_of_box(design)))
+
+
+def _remember(handle: int, design: Design, entry: dict) -> None:
+    """Keep ``entry`` as the last check or judge of ``handle`` (if the design was not replaced meanwhile)."""
+    slot = _slot(handle)
+    with slot.lock:
+        if slot.design is design:
+            slot.last = {**entry, "settings": tuple(slot.settings.values())}
 
 
 def out_of_box_entries(handle: int) -> list:
@@ -310,6 +355,89 @@ def waveform(handle: int, driver: str, edge: int, tap: str) -> tuple[np.ndarray,
     return w.t, w[tap]
 
 
+CAPTURE_SOURCE = "<capture from C>"   # how a capture passed in C arrays is named in messages and records
+
+
+def capture_sha256(t: np.ndarray, v: np.ndarray) -> str:
+    """SHA-256 of a capture passed in arrays: the little-endian float64 bytes of t, then of v."""
+    return sha256_bytes(np.ascontiguousarray(t, dtype="<f8").tobytes() + np.ascontiguousarray(v, dtype="<f8").tobytes())
+
+
+def judge(handle: int, driver: str, edge: int, receiver: str, t: np.ndarray, v: np.ndarray, *,
+          guardband: float = 0.0, t_edge: float | None = None) -> dict:
+    """Judge one captured edge at ``receiver``: t [s], v [V]; guardband [V]; t_edge [s] or None.
+
+    The CLI ``judge`` path: :func:`budget.judge.judge_capture` on a one-channel
+    :class:`budget.capture.Capture` whose column is named like the receiver
+    (defaults of the command: levels from the design, offset kept, noise
+    estimated, a window that cuts the edge refused).  Returns its result row
+    (the ``results[0]`` of ``busbudget.judge/1``) with the violation bits added.
+    """
+    from .capture import Capture
+    from .judge import judge_capture
+
+    if edge not in (0, 1):
+        raise ArgumentError(f"edge must be BB_RISE (0) or BB_FALL (1), got {edge}")
+    design = design_of(handle)
+    if receiver == driver:
+        raise ArgumentError(f"tap {receiver!r} is the driver; judge another receiver")
+    design.tap(receiver)          # unknown tap: ArgumentError naming the taps
+    cap = Capture.from_arrays(t, {receiver: v}, source=CAPTURE_SOURCE)
+    with _compute_lock:
+        rep = judge_capture(design, cap, driver, EDGE_NAMES[edge], guardband=float(guardband), t_edge=t_edge)
+    doc = rep.to_json()
+    row = dict(doc["results"][0])
+    row["bits"] = sum(bit for bit, name in mk.VIOLATION_NAMES if name in row["violations"])
+    _remember(handle, design, {"command": "judge", "doc": doc, "capture_sha256": capture_sha256(t, v)})
+    return row
+
+
+def record(handle: int, serial: str) -> dict:
+    """The run record (busbudget.record/1) of the last check or judge of ``handle``, as the CLI writes it.
+
+    A check is recorded as ``busbudget check --nominal --set ...`` records it (the
+    nominal report of :func:`budget.check.check`); a judge as ``busbudget judge``
+    records it.  ``inputs_sha256`` holds the hash of the values set (label
+    ``--set``, the ``PATH=VALUE`` lines of :func:`set_value`) and, for a judge,
+    of the capture arrays (label :data:`CAPTURE_SOURCE`, :func:`capture_sha256`).
+    """
+    from .check import check as budget_check
+    from .records import hash_inputs, make_record, margins_by_receiver
+
+    slot = _slot(handle)
+    with slot.lock:
+        last, digest = slot.last, slot.design_sha256
+    if last is None:
+        raise ArgumentError("nothing to record: no bb_check or bb_judge has run on this handle since it was "
+                            "opened or reset")
+    if last["command"] == "check":
+        with _compute_lock:
+            doc = budget_check(last["design"], nominal=True).to_json()
+    else:
+        doc = last["doc"]
+    inputs = hash_inputs(settings=last["settings"])
+    if last["command"] == "judge":
+        inputs[CAPTURE_SOURCE] = last["capture_sha256"]
+    return make_record(serial=serial, command=last["command"], verdict=doc["verdict"], design_sha256=digest,
+                       inputs_sha256=inputs, worst=doc.get("worst"),
+                       margins=margins_by_receiver(doc.get("results", ())))
+
+
+def log(handle: int, path: str, serial: str) -> dict:
+    """Append :func:`record` to the log at ``path`` (:func:`budget.records.append_record`); returns it."""
+    from .records import append_record
+
+    rec = record(handle, serial)
+    try:
+        return append_record(path, rec)
+    except ArgumentError as exc:
+        if str(exc).startswith(f"{path}:"):       # the log path itself is unusable
+            raise CallFailed("BB_ERR_FILE", str(exc)) from None
+        raise
+    except RecordError as exc:
+        raise CallFailed("BB_ERR_RECORD", str(exc)) from None
+
+
 def batch_counts(handle: int, n_paths: int, n_variants: int) -> None:
     """Refuse impossible bb_batch counts (BB_ERR_SIZE) before any C buffer is read.
 
@@ -356,24 +484,54 @@ def batch(handle: int, paths, values: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return r.worst_margin, r.passed
 
 
+def kernel_cache_dirs() -> list:
+    """[(directory, numba locator class)] numba caches this package's compiled kernels in.
+
+    numba's own view, from the kernels themselves (each cached dispatcher's
+    cache locator, chosen when the kernel was decorated): with
+    ``NUMBA_CACHE_DIR`` set and writable it is a directory under it; otherwise
+    the package's ``__pycache__`` if writable, else the per-user cache.
+    """
+    seen = {}
+    for name, module in sorted(sys.modules.items()):
+        if not (name == "budget" or name.startswith("budget.")) or module is None:
+            continue
+        for obj in list(vars(module).values()):
+            cache = getattr(obj, "_cache", None)
+            path = getattr(cache, "_cache_path", None)
+            if isinstance(path, str) and path not in seen:
+                locator = getattr(getattr(cache, "_impl", None), "locator", None)
+                seen[path] = type(locator).__name__ if locator is not None else "?"
+    return sorted(seen.items())
+
+
 def runtime_info() -> str:
     """What the embedded runtime found: interpreter, package location, kernel cache."""
     import numba
 
     from . import __version__
-    cache = os.environ.get("NUMBA_CACHE_DIR") or "(unset: next to the package's modules, " \
-                                                "or numba's per-user cache if that is read-only)"
     try:
         layer = numba.threading_layer()
     except ValueError:          # no parallel kernel has run yet
         layer = f"{numba.config.THREADING_LAYER} (not started yet)"
-    return "\n".join([
+    lines = [
         f"busbudget {__version__} from {os.path.dirname(os.path.abspath(__file__))}",
         f"python {sys.version.split()[0]}: executable {sys.executable}",
         f"prefix {sys.prefix} (base {sys.base_prefix})",
-        f"numba {numba.__version__}, threading layer {layer}, NUMBA_CACHE_DIR {cache}",
-        f"BUSBUDGET_PYTHON {os.environ.get('BUSBUDGET_PYTHON') or '(unset: the build environment)'}",
-    ])
+        f"numba {numba.__version__}, threading layer {layer}",
+    ]
+    env = os.environ.get("NUMBA_CACHE_DIR")
+    dirs = kernel_cache_dirs()
+    for path, locator in dirs:
+        lines.append(f"kernel cache {path} ({locator})")
+    if not dirs:
+        lines.append("kernel cache: none (no cached kernel found)")
+    if env and not any(p.startswith(os.path.join(env, "")) or p == env for p, _ in dirs):
+        lines.append(f"NUMBA_CACHE_DIR {env} is not used (not writable?): numba caches where the line above says")
+    else:
+        lines.append(f"NUMBA_CACHE_DIR {env or '(unset)'}")
+    lines.append(f"BUSBUDGET_PYTHON {os.environ.get('BUSBUDGET_PYTHON') or '(unset: the build environment)'}")
+    return "\n".join(lines)
 
 
 # ---------------------------------------------------------------------------
@@ -393,7 +551,7 @@ def _set_error(message: str) -> None:
 
 STATUS_NAMES = ("BB_NOT_STARTED", "BB_OK", "BB_FAIL", "BB_ERR_NULL", "BB_ERR_HANDLE", "BB_ERR_FILE",
                 "BB_ERR_DESIGN", "BB_ERR_PATH", "BB_ERR_VALUE", "BB_ERR_SIZE", "BB_ERR_ARGUMENT",
-                "BB_ERR_SIMULATION", "BB_ERR_INTERNAL")
+                "BB_ERR_SIMULATION", "BB_ERR_INTERNAL", "BB_ERR_CAPTURE", "BB_ERR_RECORD")
 LIMIT_CODES = {"BB_LIMIT_MARGIN": mk.LIMIT_MARGIN, "BB_LIMIT_V_MAX": mk.LIMIT_V_MAX,
                "BB_LIMIT_V_MIN": mk.LIMIT_V_MIN}
 VIOLATION_BITS = {"BB_VIOL_MARGIN": mk.VIOL_MARGIN, "BB_VIOL_NEVER_VALID": mk.VIOL_NEVER_VALID,
@@ -405,6 +563,10 @@ def status_of(exc: BaseException) -> tuple[str, str]:
     """(status name, message) for an exception raised while serving a C call."""
     if isinstance(exc, CallFailed):
         return exc.status, str(exc)
+    if isinstance(exc, CaptureError):
+        return "BB_ERR_CAPTURE", str(exc)
+    if isinstance(exc, RecordError):
+        return "BB_ERR_RECORD", str(exc)
     if isinstance(exc, ArgumentError):
         return "BB_ERR_ARGUMENT", str(exc)
     if isinstance(exc, SimulationError):
@@ -645,9 +807,71 @@ def bind(ffi, lib) -> None:
             out[:] = ok.astype(np.intc)
         return "BB_OK" if bool(np.all(ok)) else "BB_FAIL"
 
+    # ---- API version 3 ----
+
+    @export
+    def bb_tolerance_count(design, count):
+        need(count=count)
+        count[0] = len(tolerance_box(design))
+        return "BB_OK"
+
+    @export
+    def bb_tolerance(design, index, path, size, vmin, vmax):
+        need(path=path)
+        box = tolerance_box(design)
+        if not 0 <= index < len(box):
+            raise ArgumentError(f"tolerance index {index} is out of range: the design's tolerance box has "
+                                f"{len(box)} entr{'y' if len(box) == 1 else 'ies'}")
+        name, lo, hi = box[index]
+        put_text(path, size, name, "the parameter path")
+        for p, x in ((vmin, lo), (vmax, hi)):
+            if p != NULL:
+                p[0] = x
+        return "BB_OK"
+
+    @export
+    def bb_reset(design):
+        reset(design)
+        return "BB_OK"
+
+    @export
+    def bb_judge(design, driver, edge, receiver, t, v, n_samples, guardband, t_edge, result):
+        drv = text_arg("driver", driver)
+        rcv = text_arg("receiver", receiver)
+        need(t=t, v=v, result=result)
+        design_of(design)
+        if not MIN_CAPTURE_SAMPLES <= n_samples <= MAX_CAPTURE_SAMPLES:
+            raise CallFailed("BB_ERR_SIZE", f"n_samples is {n_samples}; a capture has {MIN_CAPTURE_SAMPLES} to "
+                                            f"{MAX_CAPTURE_SAMPLES} samples (budget.capture.MAX_ROWS)")
+        g, te = float(guardband), float(t_edge)
+        if not (math.isfinite(g) and g >= 0):
+            raise ArgumentError(f"guardband must be a finite voltage >= 0, got {g!r}")
+        if math.isinf(te):
+            raise ArgumentError(f"t_edge must be finite, or NaN when not known; got {te!r}")
+        row = judge(design, drv, edge, rcv, doubles(t, n_samples).copy(), doubles(v, n_samples).copy(),
+                    guardband=g, t_edge=None if math.isnan(te) else te)
+        num = (lambda x: math.nan if x is None else float(x))
+        margin = row["margin_high"] if edge == 0 else row["margin_low"]
+        result.passed, result.violations = int(row["pass"]), int(row["bits"])
+        result.margin, result.headroom = num(margin), num(row["headroom"])
+        result.limit = mk.LIMIT_NAMES.index(row["limit"])
+        result.monotonic = int(bool(row["monotonic"]))
+        for name in ("v_lo", "v_hi", "overshoot", "undershoot", "ringback", "v_peak", "v_trough", "t_switch",
+                     "t_valid", "settle_time", "flight_min", "flight_max", "offset", "noise_sigma", "hysteresis"):
+            setattr(result, name, num(row[name]))
+        return "BB_OK" if row["pass"] else "BB_FAIL"
+
+    @export
+    def bb_log(design, log_path, serial):
+        need(log_path=log_path)
+        sn = text_arg("serial", serial)
+        log(design, os.fsdecode(ffi.string(log_path)), sn)
+        return "BB_OK"
+
 
 __all__ = [
     "CallFailed", "CheckSummary", "open_file", "open_text", "close", "design_of", "set_value", "get_value",
-    "param_names", "tap_names", "check", "out_of_box_entries", "margin_table", "receiver_margins", "waveform", "batch_counts", "batch",
-    "runtime_info", "last_error", "status_of", "bind",
+    "param_names", "tap_names", "check", "out_of_box_entries", "reset", "tolerance_box", "judge", "record", "log",
+    "capture_sha256", "CAPTURE_SOURCE", "margin_table", "receiver_margins", "waveform", "batch_counts", "batch",
+    "runtime_info", "kernel_cache_dirs", "last_error", "status_of", "bind",
 ]

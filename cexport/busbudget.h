@@ -2,8 +2,12 @@
  * busbudget.h -- the C face of busbudget: reflection budgets and noise margins
  * of multi-drop buses, for production test rigs and hardware-in-the-loop code.
  *
- * Build:   python cexport/build.py --out DIR   ->  DIR/libbusbudget.so, DIR/busbudget.h
- * Link:    cc rig.c -IDIR -LDIR -lbusbudget -Wl,-rpath,DIR
+ * Build:   python cexport/build.py --out DIR   ->  DIR/libbusbudget.so.3 (SONAME
+ *          libbusbudget.so.3, run path $ORIGIN then the build Python's LIBDIR),
+ *          DIR/libbusbudget.so (link), DIR/busbudget.h, DIR/busbudget.pc
+ * Link:    cc rig.c $(PKG_CONFIG_PATH=DIR pkg-config --cflags --libs busbudget)
+ *          (or cc rig.c -IDIR -LDIR -lbusbudget -Wl,-rpath,DIR); DIR may be moved
+ *          or copied as a whole: the .pc file's paths follow its own location.
  *
  * The library runs the same numba kernels as the Python package (no second
  * implementation of the math): it embeds the Python interpreter it was built
@@ -13,14 +17,21 @@
  *   - the Python environment the library was built from (interpreter, numpy,
  *     numba, busbudget).  Its python executable is baked in at build time;
  *     set BUSBUDGET_PYTHON=/path/to/bin/python (same X.Y version) to use
- *     another environment.  PYTHONHOME / PYTHONPATH are honoured as usual,
- *     except that a PYTHONHOME without a standard library (or a missing
- *     BUSBUDGET_PYTHON) stops the runtime from starting, with a message,
- *     instead of letting CPython exit the host process.
+ *     another environment.  PYTHONHOME / PYTHONPATH are honoured as usual.
+ *     Before Python starts, the library checks that it can: the executable
+ *     exists, and PYTHONHOME (if set) or the executable's installation (the
+ *     directory above its bin/, a virtual environment's "home") holds the
+ *     lib/pythonX.Y standard library of the Python the library links.  If
+ *     not (a copied libpython with no standard library, another Python
+ *     version), Python is not started at all -- CPython would exit the host
+ *     process -- and every call returns BB_NOT_STARTED with the reason.
  *     bb_runtime_info() says what was found.
  *   - a directory for numba's compiled-kernel cache.  By default numba writes
  *     next to the package's modules; on a read-only install set
- *     NUMBA_CACHE_DIR to a writable directory before the first call.  With a
+ *     NUMBA_CACHE_DIR to a writable directory before the first call (numba
+ *     quietly falls back to the package directory or its per-user cache when
+ *     NUMBA_CACHE_DIR is not writable; bb_runtime_info names the directory
+ *     in use).  With a
  *     warm cache the first check of a process takes one to two seconds on a
  *     small machine (interpreter start, imports, cache load; see
  *     benchmarks/c_overhead.py); with a cold cache the kernels compile first
@@ -29,9 +40,12 @@
  *
  * STATUS CODES
  *   Every function returns an int status.  0 is never returned by the library
- *   itself: 0 means the embedded runtime did not start (cffi returns 0 from
- *   every call when its initialisation failed; the reason is printed on
- *   stderr).  Treat 0 like an error; nothing will work in that process.
+ *   itself: 0 means the embedded runtime did not start (wrong or incomplete
+ *   Python environment, a package missing, no writable kernel cache; the
+ *   reason is printed on stderr, one line for the whole process).  Treat 0
+ *   like an error; nothing will work in that process.  bb_last_error() and
+ *   bb_runtime_info() then still fill their buffer with the reason (and
+ *   return 0).
  *   BB_OK and BB_FAIL (> 0) are successes; errors are negative.
  *   After an error, bb_last_error() gives its message (kept per thread).
  *
@@ -64,8 +78,15 @@ extern "C" {
    2: bb_result gained worst_headroom, worst_limit and n_out_of_box (appended),
       its driver / receiver / edge name the worst case by the one rule (see
       bb_result), and bb_out_of_box_count / bb_out_of_box were added.  A
-      program compiled against version 1 must be recompiled (bb_result grew). */
-enum { BB_API_VERSION = 2 };
+      program compiled against version 1 must be recompiled (bb_result grew).
+   3: calls for production rigs: bb_tolerance_count / bb_tolerance (the design's
+      tolerance box), bb_reset (back to the values as opened), bb_judge (a
+      captured edge in caller arrays, struct bb_judgement) and bb_log (the run
+      record the command line writes); status codes BB_ERR_CAPTURE and
+      BB_ERR_RECORD.  When the runtime cannot start, bb_last_error and
+      bb_runtime_info still give the reason (and return BB_NOT_STARTED).
+      Nothing of version 2 changed: a version 2 program runs unchanged. */
+enum { BB_API_VERSION = 3 };
 
 /* Status codes returned by every function (see STATUS CODES above). */
 enum bb_status {
@@ -81,7 +102,10 @@ enum bb_status {
     BB_ERR_SIZE = -7,       /* a count or buffer size is wrong or too small */
     BB_ERR_ARGUMENT = -8,   /* another bad argument (unknown tap, edge, index...) */
     BB_ERR_SIMULATION = -9, /* the engine could not produce a trustworthy result */
-    BB_ERR_INTERNAL = -10   /* unexpected failure inside the library (a bug: report it) */
+    BB_ERR_INTERNAL = -10,  /* unexpected failure inside the library (a bug: report it) */
+    /* added in API version 3 */
+    BB_ERR_CAPTURE = -11,   /* bb_judge: the captured waveform cannot be judged (see bb_judge) */
+    BB_ERR_RECORD = -12     /* bb_log: the record was not written whole (disk full...); log unchanged */
 };
 
 /* Edges (inputs, not statuses). */
@@ -152,9 +176,13 @@ typedef struct bb_result {
 int bb_version(int *api_version, char *text, size_t text_size);
 
 /* What the runtime found, as text: python executable and version, prefix,
-   where the busbudget package was imported from, numba version and
-   compiled-kernel cache directory.  Writes into buf (size bytes with the NUL).
-   Returns BB_OK, BB_ERR_NULL, BB_ERR_SIZE (buf then holds ""). */
+   where the busbudget package was imported from, numba version, the
+   directory numba caches the compiled kernels in (its own choice: under
+   NUMBA_CACHE_DIR if that is set and writable, else next to the package or
+   in the per-user cache; an unused NUMBA_CACHE_DIR is named as such).
+   Writes into buf (size bytes with the NUL).
+   Returns BB_OK, BB_ERR_NULL, BB_ERR_SIZE (buf then holds "").  When the
+   runtime did not start: the reason, and BB_NOT_STARTED. */
 int bb_runtime_info(char *buf, size_t size);
 
 /* The message of the calling thread's most recent failed call ("" if none
@@ -162,7 +190,8 @@ int bb_runtime_info(char *buf, size_t size);
    status < 0 (a clean-up call in between does not wipe it).  Messages name
    the file, path, value or argument involved.  Writes at most
    size bytes with the NUL; a longer message is cut and BB_ERR_SIZE returned.
-   Returns BB_OK, BB_ERR_NULL (buf NULL or size 0), BB_ERR_SIZE. */
+   Returns BB_OK, BB_ERR_NULL (buf NULL or size 0), BB_ERR_SIZE.  When the
+   runtime did not start: why (cut to size), and BB_NOT_STARTED. */
 int bb_last_error(char *buf, size_t size);
 
 /* Opens a design file (TOML, UTF-8; format in the README).  path is a file
@@ -194,7 +223,9 @@ int bb_close(bb_handle design);
 int bb_set(bb_handle design, const char *path, double value);
 
 /* Like bb_set() with the value as text with its unit ("37 ohm", "1.8 pF",
-   "6.7 ns/m"; UTF-8, NUL-terminated) or a plain number in SI base units.
+   "6.7 ns/m"; UTF-8, NUL-terminated).  Text without a unit ("22.4") is
+   refused with a message saying which unit to write: give SI numbers
+   with bb_set().
    Unit names are case-insensitive where that is unambiguous (pF, pf, PF);
    "MOHM" or "mv" (milli or mega?) are refused with both readings.
    Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_PATH, BB_ERR_VALUE
@@ -291,6 +322,105 @@ int bb_waveform(bb_handle design, const char *driver, int edge, const char *tap,
 int bb_batch(bb_handle design, size_t n_paths, const char *const *paths,
              size_t n_variants, const double *values,
              double *worst_margin, int *passed);
+
+/* ---- added in API version 3: calls for production rigs ---- */
+
+/* Number of entries of the design's tolerance box ([tolerances] table: the
+   box `busbudget check` varies; Python: budget.Design.tolerances) into
+   *count; 0 without a [tolerances] table.  Values set with bb_set /
+   bb_set_text do not change the box.
+   Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE. */
+int bb_tolerance_count(bb_handle design, int *count);
+
+/* Entry index (0 .. count-1, [tolerances] order) of the tolerance box: its
+   dotted path into path (size bytes with the NUL) and the interval's
+   absolute bounds [SI] into *min and *max (either may be NULL).  A
+   tolerance written as "10%" or "+/- 2 ohm" comes back as its absolute
+   bounds around the nominal value.
+   Returns BB_OK, BB_ERR_NULL (path NULL), BB_ERR_HANDLE, BB_ERR_ARGUMENT
+   (index out of range), BB_ERR_SIZE (path then holds ""). */
+int bb_tolerance(bb_handle design, int index, char *path, size_t size, double *min, double *max);
+
+/* Undoes every bb_set / bb_set_text of the handle: the design is again the
+   one bb_open_file / bb_open_text read (nominal values), as if just opened
+   (also forgets the last bb_check / bb_judge for bb_log).  Use it between
+   units on a rig that keeps one handle open.
+   Returns BB_OK, BB_ERR_HANDLE. */
+int bb_reset(bb_handle design);
+
+/* Outcome of bb_judge(): one captured edge at one receiver, judged with the
+   metric, violation and headroom rules of the simulation (the same numbers
+   as `busbudget judge` and budget.judge.judge_capture).  Voltages [V],
+   times [s].  NaN marks a value that does not exist (no margin when the
+   edge never becomes valid; flight times without t_edge; the offset when the
+   capture has too few pre-edge samples). */
+typedef struct bb_judgement {
+    int passed;            /* 1: no violation; 0: at least one */
+    int violations;        /* OR of the bb_violation bits */
+    double margin;         /* [V] noise margin after the guardband (high level on a rise, low on a fall) */
+    double headroom;       /* [V] lowest of margin - min_margin, v_max - v_peak, v_trough - v_min
+                              (ratings moved inward by the guardband) */
+    int limit;             /* bb_limit: the term that sets headroom */
+    int monotonic;         /* 1: no fall-back inside the threshold region */
+    double v_lo, v_hi;     /* [V] DC levels the trace was judged against (the design's, at this pin) */
+    double overshoot;      /* [V] above v_hi (rise) / below v_lo (fall) */
+    double undershoot;     /* [V] below v_lo (rise) / above v_hi (fall) */
+    double ringback;       /* [V] */
+    double v_peak, v_trough; /* [V] highest and lowest sample */
+    double t_switch;       /* [s] first threshold crossing, from the driver's ramp start when
+                              t_edge is given, else on the capture's own time axis */
+    double t_valid;        /* [s] last entry into the valid region, same time base */
+    double settle_time;    /* [s] same time base (NaN: never settles) */
+    double flight_min, flight_max; /* [s] (NaN without t_edge) */
+    double offset;         /* [V] median of the pre-edge samples minus the design's starting level */
+    double noise_sigma;    /* [V] noise estimate used */
+    double hysteresis;     /* [V] fall-back hysteresis used (6 x noise_sigma) */
+} bb_judgement;
+
+/* Judges a captured edge at tap `receiver` when tap `driver` drives `edge`
+   (BB_RISE / BB_FALL): t[0 .. n_samples-1] [s] strictly increasing (any
+   origin, pre-trigger samples welcome), v[...] [V] the receiver pin's
+   voltage.  guardband [V] >= 0 (measurement uncertainty, 0 for none) is
+   subtracted from the margin and from the headroom to the ratings.  t_edge
+   [s] is when the driver's ramp starts on the capture's time axis; NaN if
+   not known (flight times are then NaN, the voltage metrics do not depend
+   on it).  Defaults of `busbudget judge`: levels from the design, probe
+   offset kept (it counts against the margin), noise estimated from the
+   pre-edge samples.  Reads the caller's arrays during the call only and
+   fills *result (caller-owned).  The design as it stands (nominal values
+   plus every bb_set) gives thresholds, ratings and levels; the result is
+   kept for bb_log.
+   Returns BB_OK (passes), BB_FAIL (violations), BB_ERR_NULL, BB_ERR_HANDLE,
+   BB_ERR_ARGUMENT (unknown tap, driver that cannot drive, receiver that
+   cannot receive, bad edge, guardband < 0 or not finite, t_edge infinite),
+   BB_ERR_SIZE (n_samples < 2 or above 20,000,000), BB_ERR_CAPTURE (a sample
+   not finite, time not strictly increasing, the trace never reaches the
+   entry threshold or starts past it, or ends before the edge settles:
+   the message says which), BB_ERR_SIMULATION. */
+int bb_judge(bb_handle design, const char *driver, int edge, const char *receiver,
+             const double *t, const double *v, size_t n_samples, double guardband, double t_edge,
+             bb_judgement *result);
+
+/* Appends the run record of the handle's last bb_check or bb_judge to the
+   log file log_path (created if missing): one JSON line, schema
+   busbudget.record/1, the record `busbudget check --nominal` / `busbudget
+   judge` write with --log FILE --serial SN (time, serial, design file hash,
+   input hashes, verdict, worst case, margins, tool version).  A record is
+   written whole or not at all, under a lock shared with every other writer
+   of the log (several rig processes may share one log).  Inputs hashed:
+   "--set": the values set, one "PATH=VALUE" line per path (bb_set writes
+   the shortest text that reads back as the same double, bb_set_text the
+   text given); for a judge "<capture from C>": the little-endian doubles of
+   t then v.  serial: UTF-8, non-empty, no control characters.  A check
+   record holds bb_check's numbers (Python: budget.check.check(design,
+   nominal=True)); `busbudget check --set` narrows the tolerance box to the
+   measured values, which sets its time step, so its numbers can differ from
+   them by the discretisation (within the accuracy target).
+   Returns BB_OK, BB_ERR_NULL, BB_ERR_HANDLE, BB_ERR_ARGUMENT (no check or
+   judge since open / reset, or a bad serial), BB_ERR_FILE (the log cannot be
+   opened for appending), BB_ERR_RECORD (not written: disk full or I/O
+   error; the log is unchanged). */
+int bb_log(bb_handle design, const char *log_path, const char *serial);
 
 #ifdef __cplusplus
 }

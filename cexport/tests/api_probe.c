@@ -1,18 +1,27 @@
 /*
  * api_probe.c -- drives libbusbudget from C for tests/test_cexport.py, which
  * compares every number printed here with the Python API on the same inputs.
- * Numbers are printed with %.17g, enough to read the same double back.
+ * Numbers are printed with %.17g, enough to read the same double back, or
+ * (the API version 3 calls) with %a, the exact bits (Python: float.fromhex).
  *
  *   api_probe init
  *   api_probe check  DESIGN [PATH=VALUE ...]
  *   api_probe wave   DESIGN DRIVER rise|fall TAP [PATH=VALUE ...]
  *   api_probe batch  DESIGN N PATH LO HI [PATH LO HI ...]
  *   api_probe errors DESIGN BAD_DESIGN
+ *   api_probe rig    DESIGN LOG SERIAL [PATH=VALUE ...]
+ *       tolerance box, set, check, bb_log, bb_reset, check again
+ *   api_probe judge  DESIGN DRIVER rise|fall RECEIVER GUARDBAND T_EDGE CAPTURE LOG SERIAL [PATH=VALUE ...]
+ *       CAPTURE: a text file of "t v" lines in C99 hex floats; T_EDGE "nan" if not known
+ *   api_probe logthreads DESIGN LOG THREADS RECORDS
+ *       THREADS pthreads, each with its own handle (lines.route.z0 = 44 + thread ohm), one
+ *       bb_check and RECORDS bb_log calls into the same LOG, serial "T<thread>"
  *
  * Exit status: 0 done, 1 an unexpected status (printed), 3 the runtime did
  * not start (a call returned BB_NOT_STARTED = 0).
  */
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -72,8 +81,20 @@ static int cmd_init(void)
     char text[64] = "";
     status = bb_version(&api, text, sizeof text);
     printf("version %d %d %s\n", status, api, text);
-    if (status == BB_NOT_STARTED)
+    if (status == BB_NOT_STARTED) {
+        /* the reason is still there for the rig to log */
+        char why[BB_ERROR_SIZE] = "", info[4096] = "";
+        int s1 = bb_last_error(why, sizeof why), s2 = bb_runtime_info(info, sizeof info), i, s3 = 0;
+        bb_result r;
+        bb_handle h = 0;
+        printf("last-error %d %s\n", s1, why);
+        printf("runtime-info-not-started %d %s\n", s2, info);
+        /* every other call: BB_NOT_STARTED too */
+        for (i = 0; i < 3; i++)
+            s3 |= bb_open_file("/nonexistent", &h) | bb_check(1, &r) | bb_tolerance_count(1, &i);
+        printf("other-calls %d\n", s3);
         return not_started("bb_version");
+    }
     printf("header-api %d\n", BB_API_VERSION);
     {
         char info[4096];
@@ -211,6 +232,164 @@ static int cmd_batch(const char *file, int n_variants, int n_paths, char **args)
     return 0;
 }
 
+/* ---- API version 3: tolerance box, reset, judge, log (doubles printed with %a) ---- */
+
+static int print_params(bb_handle design, const char *tag)
+{
+    int n_params, i, status;
+    char name[256];
+    double value;
+    if ((status = bb_param_count(design, &n_params)) != BB_OK)
+        return unexpected("bb_param_count", status);
+    for (i = 0; i < n_params; i++) {
+        if ((status = bb_param_name(design, i, name, sizeof name)) != BB_OK)
+            return unexpected("bb_param_name", status);
+        if ((status = bb_get(design, name, &value)) != BB_OK)
+            return unexpected("bb_get", status);
+        printf("%s %s %a\n", tag, name, value);
+    }
+    return 0;
+}
+
+static int cmd_rig(const char *file, const char *log, const char *serial, int n, char **args)
+{
+    bb_handle design;
+    bb_result r;
+    int status, count = -1, i;
+    char name[256];
+
+    if ((status = bb_open_file(file, &design)) != BB_OK)
+        return status == BB_NOT_STARTED ? not_started("bb_open_file") : unexpected("bb_open_file", status);
+    if ((status = bb_tolerance_count(design, &count)) != BB_OK)
+        return unexpected("bb_tolerance_count", status);
+    printf("tolerance-count %d\n", count);
+    for (i = 0; i < count; i++) {
+        double lo = 0, hi = 0;
+        if ((status = bb_tolerance(design, i, name, sizeof name, &lo, &hi)) != BB_OK)
+            return unexpected("bb_tolerance", status);
+        printf("tolerance %s %a %a\n", name, lo, hi);
+    }
+    bb_close(design);
+    if ((status = open_and_set(file, n, args, &design)) != 0)
+        return status;
+    status = bb_check(design, &r);
+    if (status != BB_OK && status != BB_FAIL)
+        return unexpected("bb_check", status);
+    printf("check-set %d %a\n", status, r.worst_margin);
+    if ((status = bb_log(design, log, serial)) != BB_OK)
+        return unexpected("bb_log", status);
+    printf("log %d\n", status);
+    if ((status = bb_reset(design)) != BB_OK)
+        return unexpected("bb_reset", status);
+    printf("reset %d\n", status);
+    if ((status = print_params(design, "reset-param")) != 0)
+        return status;
+    /* after a reset the handle has no check to record */
+    status = bb_log(design, log, serial);
+    printf("log-after-reset %d\n", status);
+    status = bb_check(design, &r);
+    if (status != BB_OK && status != BB_FAIL)
+        return unexpected("bb_check", status);
+    printf("check-reset %d %a %d %d %d\n", status, r.worst_margin, r.driver, r.receiver, r.edge);
+    bb_close(design);
+    return 0;
+}
+
+static int cmd_judge(int argc, char **argv)
+{
+    /* DESIGN DRIVER EDGE RECEIVER GUARDBAND T_EDGE CAPTURE LOG SERIAL [PATH=VALUE ...] */
+    bb_handle design;
+    bb_judgement j;
+    size_t n = 0, cap = 1024;
+    double *t = malloc(sizeof(double) * cap), *v = malloc(sizeof(double) * cap), a, b;
+    double guardband = strtod(argv[4], NULL), t_edge = strtod(argv[5], NULL);
+    int status, edge = strcmp(argv[2], "rise") == 0 ? BB_RISE : BB_FALL;
+    FILE *f = fopen(argv[6], "r");
+
+    if (f == NULL) {
+        printf("cannot open %s\n", argv[6]);
+        return 1;
+    }
+    while (fscanf(f, "%la %la", &a, &b) == 2) {
+        if (n == cap) {
+            cap *= 2;
+            t = realloc(t, sizeof(double) * cap);
+            v = realloc(v, sizeof(double) * cap);
+        }
+        t[n] = a;
+        v[n++] = b;
+    }
+    fclose(f);
+    if ((status = open_and_set(argv[0], argc - 9, argv + 9, &design)) != 0)
+        return status;
+    memset(&j, 0xA5, sizeof j);   /* every field must be written */
+    status = bb_judge(design, argv[1], edge, argv[3], t, v, n, guardband, t_edge, &j);
+    if (status != BB_OK && status != BB_FAIL)
+        return unexpected("bb_judge", status);
+    printf("judge %d %zu\n", status, n);
+    printf("ints %d %d %d %d\n", j.passed, j.violations, j.limit, j.monotonic);
+    printf("margin %a\nheadroom %a\nv_lo %a\nv_hi %a\novershoot %a\nundershoot %a\nringback %a\n",
+           j.margin, j.headroom, j.v_lo, j.v_hi, j.overshoot, j.undershoot, j.ringback);
+    printf("v_peak %a\nv_trough %a\nt_switch %a\nt_valid %a\nsettle_time %a\nflight_min %a\nflight_max %a\n",
+           j.v_peak, j.v_trough, j.t_switch, j.t_valid, j.settle_time, j.flight_min, j.flight_max);
+    printf("offset %a\nnoise_sigma %a\nhysteresis %a\n", j.offset, j.noise_sigma, j.hysteresis);
+    if ((status = bb_log(design, argv[7], argv[8])) != BB_OK)
+        return unexpected("bb_log", status);
+    printf("log %d\n", status);
+    bb_close(design);
+    free(t);
+    free(v);
+    return 0;
+}
+
+struct log_job {
+    const char *file, *log;
+    int index, records, status;
+};
+
+static void *log_thread(void *arg)
+{
+    struct log_job *job = arg;
+    bb_handle h;
+    bb_result r;
+    char serial[32];
+    int k, status;
+    snprintf(serial, sizeof serial, "T%d", job->index);
+    job->status = 0;
+    if ((status = bb_open_file(job->file, &h)) != BB_OK || (status = bb_set(h, "lines.route.z0", 44.0 + job->index))
+        != BB_OK || ((status = bb_check(h, &r)) != BB_OK && status != BB_FAIL)) {
+        job->status = status;
+        return NULL;
+    }
+    for (k = 0; k < job->records; k++)
+        if ((status = bb_log(h, job->log, serial)) != BB_OK)
+            job->status = status;
+    bb_close(h);
+    return NULL;
+}
+
+static int cmd_logthreads(const char *file, const char *log, int n_threads, int records)
+{
+    pthread_t tid[16];
+    struct log_job jobs[16];
+    int i, bad = 0;
+    if (n_threads < 1 || n_threads > 16)
+        return 2;
+    for (i = 0; i < n_threads; i++) {
+        jobs[i].file = file;
+        jobs[i].log = log;
+        jobs[i].index = i;
+        jobs[i].records = records;
+        pthread_create(&tid[i], NULL, log_thread, &jobs[i]);
+    }
+    for (i = 0; i < n_threads; i++) {
+        pthread_join(tid[i], NULL);
+        printf("thread %d %d\n", i, jobs[i].status);
+        bad |= jobs[i].status != 0;
+    }
+    return bad ? 1 : 0;
+}
+
 /* ---- bad input: one line per case, "case NAME STATUS MESSAGE" ---- */
 
 static void report(const char *name, int status)
@@ -325,6 +504,89 @@ static int cmd_errors(const char *file, const char *bad_file)
     printf("unchanged lines.route.z0 %.17g\n", value);
     status = bb_get(h, "lines.route.z0", &value);
     report("success_keeps_message", status);   /* still the failed bb_set's message */
+
+    /* ---- API version 3 ---- */
+    {
+        double lo, hi, tt[8], vv[8], sentinel[4];
+        int passed_sentinel[4], k, untouched;
+        bb_judgement j;
+        bb_handle fresh;
+        size_t huge_counts[] = {(size_t)10000001, (size_t)-1};
+        for (k = 0; k < 8; k++) {
+            tt[k] = 1e-9 * k;
+            vv[k] = 0.0;
+        }
+        report("tolerance_count_null", bb_tolerance_count(h, NULL));
+        report("tolerance_null_path", bb_tolerance(h, 0, NULL, 16, &lo, &hi));
+        report("tolerance_index_out_of_range", bb_tolerance(h, 99, message, sizeof message, &lo, &hi));
+        report("tolerance_small_buffer", bb_tolerance(h, 0, small, sizeof small, &lo, &hi));
+        report("reset_closed_handle", bb_reset(closed));
+        bb_open_file(file, &fresh);
+        report("log_nothing_yet", bb_log(fresh, "/nonexistent-dir/bench.jsonl", "SN-1"));
+        bb_check(fresh, &r);
+        report("log_null_path", bb_log(fresh, NULL, "SN-1"));
+        report("log_null_serial", bb_log(fresh, "/dev/null", NULL));
+        report("log_empty_serial", bb_log(fresh, "/dev/null", ""));
+        report("log_serial_control_character", bb_log(fresh, "/dev/null", "SN\n1"));
+        report("log_directory", bb_log(fresh, "/", "SN-1"));
+        report("log_cannot_open", bb_log(fresh, "/nonexistent-dir/bench.jsonl", "SN-1"));
+        report("log_disk_full", bb_log(fresh, "/dev/full", "SN-1"));
+        bb_reset(fresh);
+        report("log_after_reset", bb_log(fresh, "/dev/null", "SN-1"));
+        bb_close(fresh);
+        report("judge_null_driver", bb_judge(h, NULL, BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        report("judge_null_receiver", bb_judge(h, "CTRL", BB_RISE, NULL, tt, vv, 8, 0.0, NAN, &j));
+        report("judge_null_t", bb_judge(h, "CTRL", BB_RISE, "MEM1", NULL, vv, 8, 0.0, NAN, &j));
+        report("judge_null_result", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, NULL));
+        report("judge_one_sample", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 1, 0.0, NAN, &j));
+        report("judge_huge_count", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, (size_t)-1, 0.0, NAN, &j));
+        report("judge_unknown_receiver", bb_judge(h, "CTRL", BB_RISE, "MEM9", tt, vv, 8, 0.0, NAN, &j));
+        report("judge_receiver_is_driver", bb_judge(h, "CTRL", BB_RISE, "CTRL", tt, vv, 8, 0.0, NAN, &j));
+        report("judge_driver_cannot_drive", bb_judge(h, "MEM2", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        report("judge_bad_edge", bb_judge(h, "CTRL", 5, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        report("judge_negative_guardband", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, -0.01, NAN, &j));
+        report("judge_infinite_t_edge", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, INFINITY, &j));
+        report("judge_misses_edge", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        vv[3] = NAN;
+        report("judge_nan_sample", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        vv[3] = 0.0;
+        tt[4] = tt[3];
+        report("judge_time_repeated", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+        tt[4] = 4e-9;
+        for (k = 0; k < 8; k++)
+            vv[k] = k < 7 ? 0.0 : 2.5;   /* the edge in the last sample: the record ends before it settles */
+        report("judge_window_cuts_edge", bb_judge(h, "CTRL", BB_RISE, "MEM1", tt, vv, 8, 0.0, NAN, &j));
+
+        /* bb_batch: an impossible count is refused before the caller's buffers are touched */
+        for (k = 0; k < 2; k++) {
+            int i;
+            for (i = 0; i < 4; i++) {
+                sentinel[i] = -1234.5;
+                passed_sentinel[i] = 77;
+            }
+            status = bb_batch(h, 1, one_path, huge_counts[k], one_value, sentinel, passed_sentinel);
+            untouched = 1;
+            for (i = 0; i < 4; i++)
+                untouched &= sentinel[i] == -1234.5 && passed_sentinel[i] == 77;
+            report(k == 0 ? "batch_too_many_variants" : "batch_size_max_variants", status);
+            printf("untouched %s %d\n", k == 0 ? "batch_too_many_variants" : "batch_size_max_variants",
+                   untouched);
+        }
+        {
+            const char *many[1000];
+            int i;
+            for (i = 0; i < 1000; i++)
+                many[i] = "lines.route.z0";
+            for (i = 0; i < 4; i++)
+                sentinel[i] = -1234.5;
+            status = bb_batch(h, 1000, many, 1, one_value, sentinel, NULL);
+            untouched = 1;
+            for (i = 0; i < 4; i++)
+                untouched &= sentinel[i] == -1234.5;
+            report("batch_too_many_paths", status);
+            printf("untouched batch_too_many_paths %d\n", untouched);
+        }
+    }
     bb_close(h);
     return 0;
 }
@@ -341,6 +603,12 @@ int main(int argc, char **argv)
         return cmd_batch(argv[2], atoi(argv[3]), (argc - 4) / 3, argv + 4);
     if (argc == 4 && strcmp(argv[1], "errors") == 0)
         return cmd_errors(argv[2], argv[3]);
+    if (argc >= 5 && strcmp(argv[1], "rig") == 0)
+        return cmd_rig(argv[2], argv[3], argv[4], argc - 5, argv + 5);
+    if (argc == 6 && strcmp(argv[1], "logthreads") == 0)
+        return cmd_logthreads(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]));
+    if (argc >= 11 && strcmp(argv[1], "judge") == 0)
+        return cmd_judge(argc - 2, argv + 2);
     fprintf(stderr, "usage: see the comment at the top of api_probe.c\n");
     return 2;
 }
