@@ -1,0 +1,158 @@
+"""Candidate designs over the tolerance box, scored in one batch: the engine behind the solvers.
+
+A *candidate* is a set of values ({path: value [SI]}) tried on a design: a stub
+length, a pair of termination resistors, a trunk spacing.  :func:`score` takes a
+whole candidate set at once, crosses it with the design's tolerance box (the
+nominal values and every corner, as :func:`budget.check.check` evaluates them;
+only the nominal design with ``nominal=True``) and runs it through
+:func:`budget.sweep.sweep` as one batch: M candidates x (1 + 2**k) variants.
+
+Moving a toleranced value
+-------------------------
+When a candidate changes a value that has a tolerance, its interval moves with
+it: its ends shift by the same amount (a stub drawn 3 mm shorter keeps its
++-0.5 mm; a "5%" written in the file was turned into an absolute interval when
+the design was loaded, and it is that interval that moves).  :func:`moved`
+applies the same rule to a single design, so the solvers' confirmation runs
+and the sensitivity test re-run :func:`budget.check.check` on exactly the box
+the batch evaluated.
+
+Scores
+------
+Each candidate's score is the worst case over its variants by the one rule of
+:mod:`budget.kernels.metrics` (a violation before no violation, then the lowest
+headroom [V]); :attr:`Scores.key` orders candidates by it (higher is better).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Mapping
+
+import numpy as np
+
+from .analyses import corner_values, varied_paths
+from .edges import EDGES
+from .errors import ArgumentError
+from .kernels import metrics as mk
+from .model import Design
+from .sweep import plan, sweep
+
+
+def moved(design: Design, values: Mapping[str, float]) -> Design:
+    """``design`` with ``values`` ({path: value [SI]}) set and each toleranced one's interval shifted with it."""
+    out = design.with_values(dict(values))
+    box = {}
+    for p, (lo, hi) in design.tolerances.items():
+        if p in values:
+            shift = float(values[p]) - float(design.params[p])
+            lo, hi = lo + shift, hi + shift
+        box[p] = (lo, hi)
+    return out.with_tolerance_box(box) if box else out
+
+
+def box_offsets(design: Design, *, nominal: bool = False) -> tuple[dict, list]:
+    """The variants a check evaluates, as offsets from nominal: ({path: array(C)}, labels).
+
+    Variant 0 is the nominal design, then every corner of the box in the
+    order of :func:`budget.analyses.corner_values` (labels "corner 1" ...), as
+    the check labels them.  ``nominal=True``: the nominal design alone.
+    """
+    paths = [] if nominal else varied_paths(design)
+    if not paths:
+        return {}, ["nominal"]
+    vals, _, codes = corner_values(design)
+    offsets = {p: np.concatenate([[0.0], vals[p] - float(design.params[p])]) for p in paths}
+    return offsets, ["nominal"] + [f"corner {i + 1}" for i in range(codes.shape[0])]
+
+
+@dataclass
+class Scores:
+    """The worst case of each of M candidates over its C variants (nominal and corners).
+
+    head : [M] headroom [V] of each candidate's worst case
+    failed : [M] bool, some variant has a violation
+    n_failed : [M] number of failing variants
+    worst : [M] tuples (driver, edge, receiver, variant label) of each worst case
+    labels : the C variant labels ("nominal", "corner 1", ...)
+    dt, t_stop : {edge: [s]} the time step and window shared by the batch
+    """
+    head: np.ndarray
+    failed: np.ndarray
+    n_failed: np.ndarray
+    worst: list
+    labels: list
+    dt: dict
+    t_stop: dict
+
+    @property
+    def key(self) -> np.ndarray:
+        """[M] sort key, higher is better: headroom, every failing candidate below every passing one."""
+        span = np.nanmax(np.abs(self.head)) if self.head.size else 0.0
+        return np.where(self.failed, self.head - 4.0 * (span + 1.0), self.head)
+
+    def best(self) -> int:
+        """Index of the best candidate (first of equals)."""
+        return int(np.argmax(self.key))
+
+
+def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool = False,
+          dt: Mapping[str, float] | None = None, t_stop: Mapping[str, float] | None = None,
+          progress: Callable[[int, int], None] | None = None) -> Scores:
+    """Score M candidates ({path: array(M) [SI]}) over the tolerance box of ``design`` in one sweep.
+
+    Every candidate is evaluated at the nominal design and at every corner of
+    the box (its own toleranced values moved with it, see :func:`moved`),
+    every driver, both edges and every receiver.  dt, t_stop: {edge: [s]}
+    shared by the whole batch (default: chosen by :func:`budget.sweep.plan`
+    over the box and all candidates).
+    """
+    cand = {p: np.atleast_1d(np.asarray(a, dtype=float)) for p, a in candidates.items()}
+    m = {a.shape[0] for a in cand.values()}
+    if len(m) > 1:
+        raise ArgumentError("candidate arrays differ in length")
+    m = m.pop() if m else 1
+    offsets, labels = box_offsets(design, nominal=nominal)
+    c = len(labels)
+    values = {}
+    for p in set(cand) | set(offsets):
+        base = cand[p] if p in cand else np.full(m, float(design.params[p]))
+        off = offsets.get(p, np.zeros(c))
+        values[p] = (base[:, None] + off[None, :]).ravel()
+    if dt is None or t_stop is None:
+        _, dts, tss = plan(design, values, EDGES)
+        dt, t_stop = dt or dts, t_stop or tss
+    res = _sweep_fixed(design, values, dt, t_stop, progress)
+    n = res.n_variants
+    head = np.where(res.valid[None, :, None, :], res.headroom, np.nan).reshape(m, c, -1)
+    bits = res.bits.reshape(m, c, -1)
+    shape = res.bits.shape[1:]
+    out_head, failed, worst = np.empty(m), np.empty(m, dtype=bool), []
+    for i in range(m):
+        k = int(mk.worst_along(bits[i].ravel(), head[i].ravel()))
+        v, rest = divmod(k, head.shape[2])
+        d, e, r = np.unravel_index(rest, shape)
+        out_head[i] = head[i].ravel()[k]
+        failed[i] = bool(np.any(bits[i] != 0))
+        worst.append((res.drivers[d], res.edges[e], res.receivers[r], labels[v]))
+    n_failed = np.any(bits != 0, axis=2).sum(axis=1)
+    assert n == m * c
+    return Scores(head=out_head, failed=failed, n_failed=n_failed, worst=worst, labels=labels,
+                  dt=dict(dt), t_stop=dict(t_stop))
+
+
+def _sweep_fixed(design, values, dt, t_stop, progress):
+    """One sweep per edge with that edge's step and window (sweep takes one dt for all edges)."""
+    if len({dt[e] for e in EDGES}) == 1 and len({t_stop[e] for e in EDGES}) == 1:
+        return sweep(design, values or None, dt=dt[EDGES[0]], t_stop=t_stop[EDGES[0]], keep="margin",
+                     progress=progress)
+    parts = [sweep(design, values or None, edges=(e,), dt=dt[e], t_stop=t_stop[e], keep="margin",
+                   progress=progress) for e in EDGES]
+    a, b = parts
+    from dataclasses import replace
+
+    return replace(a, edges=EDGES, margin=np.concatenate([a.margin, b.margin], axis=2),
+                   bits=np.concatenate([a.bits, b.bits], axis=2),
+                   headroom=np.concatenate([a.headroom, b.headroom], axis=2))
+
+
+__all__ = ["moved", "box_offsets", "Scores", "score"]
