@@ -74,6 +74,7 @@ class Scores:
     n_failed : [M] number of failing variants
     worst : [M] tuples (driver, edge, receiver, variant label) of each worst case
     labels : the C variant labels ("nominal", "corner 1", ...)
+    variant_head : [M, C] headroom [V] of the worst case of each variant
     dt, t_stop : {edge: [s]} the time step and window shared by the batch
     """
     head: np.ndarray
@@ -83,6 +84,7 @@ class Scores:
     labels: list
     dt: dict
     t_stop: dict
+    variant_head: np.ndarray | None = None
 
     @property
     def key(self) -> np.ndarray:
@@ -97,14 +99,15 @@ class Scores:
 
 def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool = False,
           dt: Mapping[str, float] | None = None, t_stop: Mapping[str, float] | None = None,
-          progress: Callable[[int, int], None] | None = None) -> Scores:
+          only=None, progress: Callable[[int, int], None] | None = None) -> Scores:
     """Score M candidates ({path: array(M) [SI]}) over the tolerance box of ``design`` in one sweep.
 
     Every candidate is evaluated at the nominal design and at every corner of
     the box (its own toleranced values moved with it, see :func:`moved`),
     every driver, both edges and every receiver.  dt, t_stop: {edge: [s]}
     shared by the whole batch (default: chosen by :func:`budget.sweep.plan`
-    over the box and all candidates).
+    over the box and all candidates).  only: indices into the variants of
+    :func:`box_offsets` to evaluate (default: all of them).
     """
     cand = {p: np.atleast_1d(np.asarray(a, dtype=float)) for p, a in candidates.items()}
     m = {a.shape[0] for a in cand.values()}
@@ -112,6 +115,10 @@ def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool
         raise ArgumentError("candidate arrays differ in length")
     m = m.pop() if m else 1
     offsets, labels = box_offsets(design, nominal=nominal)
+    if only is not None:
+        only = [int(i) for i in only]
+        offsets = {p: a[only] for p, a in offsets.items()}
+        labels = [labels[i] for i in only]
     c = len(labels)
     values = {}
     for p in set(cand) | set(offsets):
@@ -136,8 +143,10 @@ def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool
         worst.append((res.drivers[d], res.edges[e], res.receivers[r], labels[v]))
     n_failed = np.any(bits != 0, axis=2).sum(axis=1)
     assert n == m * c
+    kv = mk.worst_along(bits.reshape(m * c, -1), head.reshape(m * c, -1), axis=1)
+    vhead = np.take_along_axis(head.reshape(m * c, -1), kv[:, None], axis=1)[:, 0].reshape(m, c)
     return Scores(head=out_head, failed=failed, n_failed=n_failed, worst=worst, labels=labels,
-                  dt=dict(dt), t_stop=dict(t_stop))
+                  dt=dict(dt), t_stop=dict(t_stop), variant_head=vhead)
 
 
 def _sweep_fixed(design, values, dt, t_stop, progress):
