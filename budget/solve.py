@@ -122,6 +122,8 @@ def _show(x, unit):
         return f"{x * 1e3:.2f} mm"
     if isinstance(x, dict):
         return x.get("label", str(x))
+    if isinstance(x, str):
+        return x
     return f"{x} {unit}".strip()
 
 
