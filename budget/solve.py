@@ -84,13 +84,14 @@ class SolveResult:
     analysis: str
     method: str
     notes: list = field(default_factory=list)
+    resolution: float | None = None
 
     def to_json(self) -> dict:
         return {"schema": SCHEMA, "question": self.question, "design": self.design, "answer": self.answer,
                 "unit": self.unit, "passes": self.passes, "margin_at_answer": self.margin_at_answer,
                 "margin_beyond": self.margin_beyond, "beyond": self.beyond, "worst": self.worst,
                 "candidates": self.candidates, "analysis": self.analysis, "method": self.method,
-                "notes": list(self.notes), "assumptions": list(ASSUMPTIONS)}
+                "resolution": self.resolution, "notes": list(self.notes), "assumptions": list(ASSUMPTIONS)}
 
     def text(self) -> str:
         def v(x):
@@ -172,12 +173,23 @@ def _search_1d(design, make, lo, hi, safe_low, resolution, nominal, progress):
     xs = np.linspace(lo, hi, GRID)
     s = run(xs)
     ok = ~s.failed
-    k = _edge_run(ok, safe_low)
-    if k < 0:
+    if not ok.any():
         return None, None, tried, float(xs[s.best()])
-    if (safe_low and k == len(xs) - 1) or (not safe_low and k == 0):
-        return float(xs[k]), None, tried, None
-    a, b = (xs[k], xs[k + 1]) if safe_low else (xs[k], xs[k - 1])    # a passes, b fails
+    if safe_low:      # the run of passes that starts at the shortest value, toward longer ones
+        k = _edge_run(ok, True)
+        if k < 0:
+            return None, None, tried, float(xs[s.best()])
+        if k == len(xs) - 1:
+            return float(xs[k]), None, tried, None
+        a, b = xs[k], xs[k + 1]
+    else:             # the run of passes that holds the best passing value, toward smaller ones
+        top = int(np.argmax(np.where(ok, s.key, -np.inf)))
+        k = top
+        while k > 0 and ok[k - 1]:
+            k -= 1
+        if k == 0:
+            return float(xs[0]), None, tried, None
+        a, b = xs[k], xs[k - 1]
     while abs(b - a) > resolution:
         inner = np.linspace(a, b, REFINE + 2)[1:-1]
         s = run(inner)
@@ -234,8 +246,10 @@ def longest_stub(design: Design, *, tap: str | None = None, nominal: bool = Fals
     method = (f"grid of {GRID} lengths from {lo * 1e3:.2f} to {longest * 1e3:.2f} mm, then brackets cut in "
               f"{REFINE + 1} per batch down to {resolution * 1e3:.2f} mm; every length from {lo * 1e3:.2f} mm up "
               "to the answer passes on the grid; the answer and the length just beyond confirmed by the check")
-    return _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, "length",
-                      lambda x: {p: x for p in paths})
+    res = _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, "length",
+                     lambda x: {p: x for p in paths})
+    res.resolution = resolution
+    return res
 
 
 def _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, key, values_at, make=None):
@@ -425,43 +439,50 @@ def best_termination(design: Design, *, series: str = "E24", schemes=SCHEMES, no
         for i in idx:
             for key in cands[0]:
                 arrays[f"termination.{i}.{key}"] = np.array([c[key] for c in cands], dtype=float)
-        env = dict(arrays)
-        from .candidates import box_offsets
-        offs, _ = box_offsets(d0, nominal=nominal)
-        for p, off in offs.items():
-            base = env.get(p, np.array([float(d0.params[p])]))
-            env[p] = (base[:, None] + off[None, :]).ravel()
-        n = max(len(a) for a in env.values())
-        env = {p: np.resize(a, n) for p, a in env.items()}
-        _, dts, tss = plan(d0, env, EDGES)
-        # rc: the window follows the longest r c of the batch; the nominal screen is shared
-        screen = score(d0, arrays, nominal=True, dt=dts, t_stop=tss, progress=progress)
-        order = np.argsort(-screen.key, kind="stable")
+        # each candidate with the time step and window the check chooses for it (an RC's window follows
+        # its r c), so a candidate's margin here is the check's; candidates sharing them share a batch
+        keys = [_plan_key(_apply(d0, idx, c)) for c in cands]
+        groups = {}
+        for j, k in enumerate(keys):
+            groups.setdefault(k, []).append(j)
+
+        def run(js, nom):
+            """score of candidates js (grouped by step and window), in the order of js."""
+            head, failed, worst = {}, {}, {}
+            for k in dict.fromkeys(keys[j] for j in js):
+                sub = [j for j in js if keys[j] == k]
+                sc = score(d0, {p: a[sub] for p, a in arrays.items()}, nominal=nom, dt=dict(k[0]),
+                           t_stop=dict(k[1]), progress=progress)
+                for g, j in enumerate(sub):
+                    head[j], failed[j], worst[j] = float(sc.head[g]), bool(sc.failed[g]), sc.worst[g]
+            return head, failed, worst
+
+        sh, sf, _ = run(list(range(len(cands))), True)
+        skey = [_key(sh[j], sf[j]) for j in range(len(cands))]
+        order = sorted(range(len(cands)), key=lambda j: skey[j], reverse=True)   # stable
         done = set()
         for start in range(0, len(order), BATCH):
             group = [int(j) for j in order[start:start + BATCH]]
-            if best is not None and screen.key[group[0]] <= best[0] and best[1] is not None:
+            if best is not None and skey[group[0]] <= best[0]:
                 break
-            sub = {p: a[group] for p, a in arrays.items()}
-            s = score(d0, sub, nominal=nominal, dt=dts, t_stop=tss, progress=progress)
-            for g, j in enumerate(group):
+            bh, bf, bw = run(group, nominal)
+            for j in group:
                 done.add(j)
-                k = float(s.key[g])
+                k = _key(bh[j], bf[j])
                 tried.append({"scheme": scheme, "values": cands[j], "label": _label(scheme, cands[j]),
-                              "passes": bool(not s.failed[g]), "margin": float(s.head[g]),
-                              "nominal_margin": float(screen.head[j]), "over_box": True,
-                              "worst": dict(zip(("driver", "edge", "receiver", "corner"), s.worst[g])),
-                              "_key": k})
+                              "passes": not bf[j], "margin": bh[j], "nominal_margin": sh[j],
+                              "nominal_passes": not sf[j], "over_box": True,
+                              "worst": dict(zip(("driver", "edge", "receiver", "corner"), bw[j])), "_key": k})
                 if best is None or k > best[0]:
-                    best = (k, scheme, cands[j], float(s.head[g]), s.worst[g], d0, idx)
+                    best = (k, scheme, cands[j], bh[j], bw[j], d0, idx)
         for j in range(len(cands)):
             if j not in done:
                 tried.append({"scheme": scheme, "values": cands[j], "label": _label(scheme, cands[j]),
-                              "passes": None, "margin": None, "nominal_margin": float(screen.head[j]),
-                              "over_box": False, "worst": None, "_key": -math.inf})
+                              "passes": None, "margin": None, "nominal_margin": sh[j],
+                              "nominal_passes": not sf[j], "over_box": False, "worst": None, "_key": None})
     if best is None:
         raise ArgumentError("no termination candidate could be formed (see the notes)")
-    tried.sort(key=lambda c: -c["_key"])
+    tried.sort(key=lambda c: c["_key"] if c["over_box"] else (-1, -math.inf), reverse=True)
     for c in tried:
         c.pop("_key")
     _, scheme, vals, head, _, d0, idx = best
@@ -480,6 +501,16 @@ def best_termination(design: Design, *, series: str = "E24", schemes=SCHEMES, no
                        None if runner is None else runner["margin"],
                        None if runner is None else runner["label"], worst, tried, _analysis(final, nominal),
                        method, notes)
+
+
+def _key(head: float, failed: bool) -> tuple:
+    """Sort key of a candidate's worst case, higher is better: any violation first, then the headroom."""
+    return (0 if failed else 1, head)
+
+
+def _plan_key(d: Design):
+    _, dts, tss = plan(d, {}, EDGES)
+    return tuple(sorted(dts.items())), tuple(sorted(tss.items()))
 
 
 def _apply(d0: Design, idx, vals) -> Design:
@@ -513,10 +544,12 @@ def _chain(design: Design):
 def drops_design(design: Design, count: int, spacing: float) -> Design:
     """The design rebuilt with ``count`` devices evenly ``spacing`` [m] apart along its trunk.
 
-    The trunk becomes count - 1 segments of the first segment's line type;
-    device i (0 ... count-1) is a copy of the design's tap number i mod T in
-    trunk order (same part and stub) named after it ("SLOT3" for an original,
-    "SLOT3_2" for its second copy...); end terminations move to the new ends,
+    The trunk becomes count - 1 segments of the first segment's line type,
+    one device on each of its count nodes: the design's taps in trunk order,
+    then copies of its receiving taps in trunk order, cycling (same part and
+    stub; "MEM1_2" is MEM1's second copy).  Fewer devices than the design has:
+    receivers are left out from the far end, taps that only drive stay.  End
+    terminations move to the new ends,
     series terminations go with every copy of their tap.  Tolerances of parts,
     lines, the edge and end terminations are kept; those of single taps and
     segments are dropped.
@@ -526,12 +559,20 @@ def drops_design(design: Design, count: int, spacing: float) -> Design:
         raise ArgumentError(f"{design.source}: every tap must sit on the trunk for the drop solver")
     line = design.segments[0].line
     pos = {n: i for i, n in enumerate(order)}
-    templates = sorted(design.taps, key=lambda t: pos[t.node])
+    base = sorted(design.taps, key=lambda t: pos[t.node])
+    rcv = [t for t in base if design.parts[t.part].can_receive]
+    if not rcv:
+        raise ArgumentError(f"{design.source}: no tap can receive; the drop solver adds copies of receivers")
+    if count >= len(base):
+        chosen = base + [rcv[i % len(rcv)] for i in range(count - len(base))]
+    else:   # fewer devices: drop receivers from the far end of the trunk, keep every tap that only drives
+        only_drive = [t for t in base if not design.parts[t.part].can_receive]
+        keep = set(id(t) for t in only_drive) | set(id(t) for t in rcv[:max(0, count - len(only_drive))])
+        chosen = [t for t in base if id(t) in keep][:count]
     nodes = [f"d{i + 1}" for i in range(count)]
     seen = {}
     taps, names = [], []
-    for i in range(count):
-        t = templates[i % len(templates)]
+    for i, t in enumerate(chosen):
         seen[t.name] = seen.get(t.name, 0) + 1
         name = t.name if seen[t.name] == 1 else f"{t.name}_{seen[t.name]}"
         stub = None if t.stub is None else Stub(t.stub.line, float(np.min(t.stub.length)))
@@ -594,7 +635,7 @@ def most_drops(design: Design, spacing: float, *, nominal: bool = False,
             lo, hi = (mid, hi) if passes(mid) else (lo, mid)
         ans = lo
     question = f"most devices the trunk carries at {spacing * 1e3:g} mm spacing"
-    method = ("devices added as copies of the design's taps in trunk order, evenly spaced, end terminations at "
+    method = ("the design's taps, then copies of its receiving taps, in trunk order, evenly spaced, end terminations at "
               "the new ends; counts searched by doubling then bisection (one batch of all corners per count), "
               "assuming fewer devices never fail where more pass; the answer and one more confirmed by the check")
     cands = [{"count": n, "passes": p, "margin": h, "worst": dict(zip(("driver", "edge", "receiver", "corner"), w))}
@@ -622,10 +663,11 @@ def smallest_spacing(design: Design, count: int, *, nominal: bool = False, wides
     if isinstance(count, bool) or not isinstance(count, (int, np.integer)) or not 2 <= count <= MAX_DROPS:
         raise ArgumentError(f"count (--count) must be a whole number of devices from 2 to {MAX_DROPS}, got {count!r}")
     count = int(count)
-    now = max(float(np.min(s.length)) for s in design.segments)
+    now = sum(float(np.min(s.length)) for s in design.segments) / len(design.segments)
     if widest is None:
-        widest = 4.0 * now
+        widest = 2.0 * now
     _check_spacing(widest, "widest")
+    # the search range must hold the answer: widest is the default's upper end [m]
     base = drops_design(design, count, widest)
     paths = [f"segment.{i}.length" for i in range(count - 1)]
     resolution = max(MIN_RESOLUTION_M, RESOLUTION * widest)
@@ -637,10 +679,12 @@ def smallest_spacing(design: Design, count: int, *, nominal: bool = False, wides
     ans, beyond, tried, best = _search_1d(base, make, lo, widest, False, resolution, nominal, progress)
     question = f"smallest spacing at which {count} devices pass"
     method = (f"grid of {GRID} spacings from {lo * 1e3:.2f} to {widest * 1e3:.2f} mm, brackets cut in {REFINE + 1} "
-              f"per batch down to {resolution * 1e3:.2f} mm; every grid spacing from the answer up passes; devices "
-              "as copies of the design's taps in trunk order; the answer and just below confirmed by the check")
-    return _finish_1d(base, paths, ans, beyond, best, tried, nominal, question, method, "spacing",
-                      lambda x: {p: x for p in paths})
+              f"per batch down to {resolution * 1e3:.2f} mm; every grid spacing from the answer up to the best one passes; the design's "
+              "taps, then copies of its receiving taps, in trunk order; the answer and just below confirmed by the check")
+    res = _finish_1d(base, paths, ans, beyond, best, tried, nominal, question, method, "spacing",
+                     lambda x: {p: x for p in paths})
+    res.resolution = resolution
+    return res
 
 
 __all__ = ["SolveResult", "SCHEMA", "SERIES", "SCHEMES", "longest_stub", "best_termination", "most_drops",
