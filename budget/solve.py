@@ -85,12 +85,15 @@ class SolveResult:
     method: str
     notes: list = field(default_factory=list)
     resolution: float | None = None
+    beyond_passes: bool | None = None
+    beyond_violations: list = field(default_factory=list)
 
     def to_json(self) -> dict:
         return {"schema": SCHEMA, "question": self.question, "design": self.design, "answer": self.answer,
                 "unit": self.unit, "passes": self.passes, "margin_at_answer": self.margin_at_answer,
                 "margin_beyond": self.margin_beyond, "beyond": self.beyond, "worst": self.worst,
                 "candidates": self.candidates, "analysis": self.analysis, "method": self.method,
+                "beyond_passes": self.beyond_passes, "beyond_violations": list(self.beyond_violations),
                 "resolution": self.resolution, "notes": list(self.notes), "assumptions": list(ASSUMPTIONS)}
 
     def text(self) -> str:
@@ -102,7 +105,10 @@ class SolveResult:
         lines.append(f"answer: {_show(self.answer, self.unit)}  ({'passes' if self.passes else 'FAILS: no candidate passes; the best one is shown'})")
         lines.append(f"worst headroom at the answer: {v(self.margin_at_answer)}")
         if self.beyond is not None:
-            lines.append(f"just beyond ({_show(self.beyond, self.unit)}): {v(self.margin_beyond)}")
+            verdict = "" if self.beyond_passes is None else ("passes, " if self.beyond_passes else "FAILS, ")
+            why = f" ({', '.join(self.beyond_violations)})" if self.beyond_violations else ""
+            lines.append(f"just beyond ({_show(self.beyond, self.unit)}): {verdict}worst headroom "
+                         f"{v(self.margin_beyond)}{why}")
         w = self.worst
         if w:
             lines.append(f"worst case at the answer: {w['receiver']} when {w['driver']} drives, {w['edge']} edge, "
@@ -271,15 +277,18 @@ def _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, metho
             break
         notes.append(f"the check fails at {ans:.6g} m (the batch's shared time step passed it): stepped back")
         beyond, ans = ans, ans - step
-    m_beyond = None
+    m_beyond = ok_b = None
+    viol = []
     if beyond is not None:
-        ok_b, m_beyond, _ = _confirm(at(beyond), nominal)
+        ok_b, m_beyond, w_b = _confirm(at(beyond), nominal)
+        viol = list(w_b["violations"])
         if ok_b:
             notes.append("the check passes just beyond the answer too (the batch's shared time step failed it)")
     else:
         notes.append("passes over the whole searched range: the answer is the range's end")
     return SolveResult(question, design.bus.name, ans, "m", bool(ok), head, m_beyond, beyond, worst,
-                       _candidates_json(tried, key), _analysis(d, nominal), method, notes)
+                       _candidates_json(tried, key), _analysis(d, nominal), method, notes,
+                       beyond_passes=ok_b, beyond_violations=viol)
 
 
 # ---------------------------------------------------------------------------
@@ -500,7 +509,7 @@ def best_termination(design: Design, *, series: str = "E24", schemes=SCHEMES, no
                        design.bus.name, answer, "ohm", bool(ok), head_c,
                        None if runner is None else runner["margin"],
                        None if runner is None else runner["label"], worst, tried, _analysis(final, nominal),
-                       method, notes)
+                       method, notes, beyond_passes=None if runner is None else runner["passes"])
 
 
 def _key(head: float, failed: bool) -> tuple:
@@ -647,14 +656,16 @@ def most_drops(design: Design, spacing: float, *, nominal: bool = False,
                            _analysis(design, nominal), method, ["even two devices fail at this spacing"])
     d = drops_design(design, ans, spacing)
     ok, head, worst = _confirm(d, nominal)
-    m_beyond = beyond = None
+    m_beyond = beyond = ok_b = None
+    viol = []
     if ans < MAX_DROPS:
         beyond = ans + 1
-        _, m_beyond, _ = _confirm(drops_design(design, beyond, spacing), nominal)
+        ok_b, m_beyond, w_b = _confirm(drops_design(design, beyond, spacing), nominal)
+        viol = list(w_b["violations"])
     else:
         notes.append(f"passes up to the search's limit of {MAX_DROPS} devices")
     return SolveResult(question, design.bus.name, ans, "devices", bool(ok), head, m_beyond, beyond, worst, cands,
-                       _analysis(d, nominal), method, notes)
+                       _analysis(d, nominal), method, notes, beyond_passes=ok_b, beyond_violations=viol)
 
 
 def smallest_spacing(design: Design, count: int, *, nominal: bool = False, widest: float | None = None,
