@@ -128,7 +128,17 @@ def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool
     if dt is None or t_stop is None:
         _, dts, tss = plan(design, values, EDGES)
         dt, t_stop = dt or dts, t_stop or tss
-    res = _sweep_fixed(design, values, dt, t_stop, progress)
+    groups = _lumping_groups(design, cand, m, min(dt.values()))
+    if len(groups) == 1:
+        res = _sweep_fixed(design, values, dt, t_stop, progress)
+    else:
+        # candidates whose lines the engine would model differently (lumped below one step) go in separate
+        # sweeps: a batch models a line one way for all its variants, from its shortest one
+        parts = []
+        for g in groups:
+            rows = np.concatenate([np.arange(i * c, (i + 1) * c) for i in g])
+            parts.append((g, _sweep_fixed(design, {p: a[rows] for p, a in values.items()}, dt, t_stop, progress)))
+        res = _merge(parts, m, c)
     n = res.n_variants
     head = np.where(res.valid[None, :, None, :], res.headroom, np.nan).reshape(m, c, -1)
     bits = res.bits.reshape(m, c, -1)
@@ -147,6 +157,60 @@ def score(design: Design, candidates: Mapping[str, np.ndarray], *, nominal: bool
     vhead = np.take_along_axis(head.reshape(m * c, -1), kv[:, None], axis=1)[:, 0].reshape(m, c)
     return Scores(head=out_head, failed=failed, n_failed=n_failed, worst=worst, labels=labels,
                   dt=dict(dt), t_stop=dict(t_stop), variant_head=vhead)
+
+
+def _delay_min(design: Design, line: str) -> float:
+    """Shortest delay per length [s/m] of a line type over its tolerance box."""
+    from .model import C0
+
+    d = float(np.min(design.lines[line].delay))
+    if f"lines.{line}.delay" in design.tolerances:
+        d = min(d, design.tolerances[f"lines.{line}.delay"][0])
+    if f"lines.{line}.er_eff" in design.tolerances:
+        d = min(d, float(np.sqrt(design.tolerances[f"lines.{line}.er_eff"][0])) / C0)
+    return d
+
+
+def _length_line(design: Design, path: str):
+    """The line type of a length path (a stub or a segment), else None."""
+    parts = path.split(".")
+    if parts[0] == "tap" and path.endswith(".stub.length"):
+        stub = design.tap(".".join(parts[1:-2])).stub
+        return None if stub is None else stub.line
+    if parts[0] == "segment" and parts[-1] == "length":
+        return design.segments[int(parts[1])].line
+    return None
+
+
+def _lumping_groups(design: Design, cand: dict, m: int, dt: float) -> list:
+    """Candidate indices grouped by which of their changed lines are shorter than one step dt [s]."""
+    sig = np.zeros((m, 0), dtype=bool)
+    for p, a in cand.items():
+        line = _length_line(design, p)
+        if line is None:
+            continue
+        # the box may shorten the line too (a toleranced length moves with its candidate)
+        lo = a + (design.tolerances[p][0] - float(design.params[p]) if p in design.tolerances else 0.0)
+        sig = np.column_stack([sig, lo * _delay_min(design, line) < dt * (1 - 1e-9)])
+    keys = {}
+    for i in range(m):
+        keys.setdefault(tuple(sig[i]), []).append(i)
+    return list(keys.values())
+
+
+def _merge(parts, m, c):
+    """One SweepResult of m x c variants from sweeps of candidate groups (candidate-major order)."""
+    from dataclasses import replace
+
+    first = parts[0][1]
+    shape = first.bits.shape[1:]
+    margin = np.empty((m * c,) + shape)
+    bits = np.empty((m * c,) + shape, dtype=first.bits.dtype)
+    head = np.empty((m * c,) + shape)
+    for g, r in parts:
+        rows = np.concatenate([np.arange(i * c, (i + 1) * c) for i in g])
+        margin[rows], bits[rows], head[rows] = r.margin, r.bits, r.headroom
+    return replace(first, n_variants=m * c, margin=margin, bits=bits, headroom=head, metrics=None, levels=None)
 
 
 def _sweep_fixed(design, values, dt, t_stop, progress):

@@ -59,6 +59,7 @@ REFINE = 7                # interior values per refining batch
 RESOLUTION = 1e-3         # of the searched range
 MIN_RESOLUTION_M = 1e-4   # 0.1 mm
 MAX_DROPS = 64            # most devices the drop search tries
+MAX_STEP_BACK = 6         # most confirmations of a 1-D answer the check disagrees with
 SERIES = ("E12", "E24", "E48", "E96")
 SCHEMES = ("parallel", "thevenin", "rc", "series")
 ASSUMPTIONS = (
@@ -162,7 +163,7 @@ def _edge_run(passed: np.ndarray, safe_low: bool) -> int:
     return last
 
 
-def _search_1d(design, make, lo, hi, safe_low, resolution, nominal, progress):
+def _search_1d(design, make, lo, hi, safe_low, resolution, nominal, progress, extra=None):
     """Threshold of a 1-D value x in [lo, hi]: make(x array) -> (design, candidates); see the module docstring.
 
     Returns (answer or None, beyond or None, tried [(x, Scores index, Scores)], best x when nothing passes).
@@ -177,6 +178,8 @@ def _search_1d(design, make, lo, hi, safe_low, resolution, nominal, progress):
         return s
 
     xs = np.linspace(lo, hi, GRID)
+    if extra is not None and extra < lo:
+        xs = np.concatenate([[extra], xs])
     s = run(xs)
     ok = ~s.failed
     if not ok.any():
@@ -241,17 +244,20 @@ def longest_stub(design: Design, *, tap: str | None = None, nominal: bool = Fals
     elif not (isinstance(longest, (int, float)) and math.isfinite(longest) and longest > 0):
         raise ArgumentError(f"longest must be a positive length in metres, got {longest!r}")
     lo = longest / GRID
+    shortest = min(lo, 0.25 * now)      # a quarter of today's stub is tried too
     resolution = max(MIN_RESOLUTION_M, RESOLUTION * longest)
 
     def make(xs):
         return design, {p: np.asarray(xs, dtype=float) for p in paths}
 
-    ans, beyond, tried, best = _search_1d(design, make, lo, longest, True, resolution, nominal, progress)
+    ans, beyond, tried, best = _search_1d(design, make, lo, longest, True, resolution, nominal, progress,
+                                          extra=shortest)
     which = f"tap {tap}'s stub" if tap else f"one length for every stub ({len(paths)} taps)"
     question = f"longest stub that keeps the bus passing: {which}"
-    method = (f"grid of {GRID} lengths from {lo * 1e3:.2f} to {longest * 1e3:.2f} mm, then brackets cut in "
-              f"{REFINE + 1} per batch down to {resolution * 1e3:.2f} mm; every length from {lo * 1e3:.2f} mm up "
-              "to the answer passes on the grid; the answer and the length just beyond confirmed by the check")
+    method = (f"grid of {shortest * 1e3:.2f} mm and {GRID} lengths from {lo * 1e3:.2f} to {longest * 1e3:.2f} mm, "
+              f"then brackets cut in {REFINE + 1} per batch down to {resolution * 1e3:.2f} mm; the answer ends the "
+              "run of passing grid lengths that starts at the shortest; the answer and the length just beyond "
+              "confirmed by the check")
     res = _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, "length",
                      lambda x: {p: x for p in paths})
     res.resolution = resolution
@@ -268,15 +274,18 @@ def _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, metho
         return SolveResult(question, design.bus.name, best, "m", False, head, None, None, worst,
                            _candidates_json(tried, key), _analysis(d, nominal), method,
                            notes + ["no value in the range passes; the best one tried is shown"])
-    # the batch shares one time step over all candidates; the check chooses its own: confirm, step back if needed
-    step = (beyond - ans) if beyond is not None else None
-    for _ in range(8):
+    # the batch shares one time step over all candidates; the check chooses its own: confirm, and where the
+    # check disagrees step back to the next passing candidate on the safe side (beyond: the one it failed)
+    side = 1.0 if beyond is None else math.copysign(1.0, ans - beyond)    # +1: safe side is above
+    back = sorted((x for x, p, _, _ in tried if p and (x - ans) * side > 0), key=lambda x: abs(x - ans))
+    for _ in range(MAX_STEP_BACK):
         d = at(ans)
         ok, head, worst = _confirm(d, nominal)
-        if ok or step is None:
+        if ok or beyond is None or not back:
             break
-        notes.append(f"the check fails at {ans:.6g} m (the batch's shared time step passed it): stepped back")
-        beyond, ans = ans, ans - step
+        notes.append(f"the check fails at {ans:.6g} m where the batch (one time step for every candidate) "
+                     "passed it: stepped back to the next passing candidate")
+        beyond, ans = ans, back.pop(0)
     m_beyond = ok_b = None
     viol = []
     if beyond is not None:
