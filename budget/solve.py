@@ -59,6 +59,7 @@ REFINE = 7                # interior values per refining batch
 RESOLUTION = 1e-3         # of the searched range
 MIN_RESOLUTION_M = 1e-4   # 0.1 mm
 MAX_DROPS = 64            # most devices the drop search tries
+RUNNERS_UP = 6            # candidates listed in the text report of the termination solver
 MAX_STEP_BACK = 6         # most confirmations of a 1-D answer the check disagrees with
 SERIES = ("E12", "E24", "E48", "E96")
 SCHEMES = ("parallel", "thevenin", "rc", "series")
@@ -114,6 +115,12 @@ class SolveResult:
         if w:
             lines.append(f"worst case at the answer: {w['receiver']} when {w['driver']} drives, {w['edge']} edge, "
                          f"{w['corner']}: {w['metric']} ({', '.join(w['violations']) or 'no violation'})")
+        ranked = [c for c in self.candidates if c.get("over_box")]
+        if ranked:
+            lines.append("")
+            lines.append(f"best candidates (worst headroom over the {'box' if 'corners' in self.analysis else 'design'}):")
+            for c in ranked[:RUNNERS_UP]:
+                lines.append(f"  {c['label']:<48} {v(c['margin'])}  {'passes' if c['passes'] else 'fails'}")
         lines.append("")
         lines.append(f"method: {self.method}")
         for n in self.notes:
