@@ -191,15 +191,20 @@ def _search_1d(design, make, lo, hi, safe_low, resolution, nominal, progress, ex
     ok = ~s.failed
     if not ok.any():
         return None, None, tried, float(xs[s.best()])
-    if safe_low:      # the run of passes that starts at the shortest value, toward longer ones
-        k = _edge_run(ok, True)
-        if k < 0:
-            return None, None, tried, float(xs[s.best()])
+    top = int(np.argmax(np.where(ok, s.key, -np.inf)))     # the passing grid value with the best margin
+    if safe_low:      # the run of passes that holds it, followed toward longer values
+        k = top
+        while k < len(xs) - 1 and ok[k + 1]:
+            k += 1
+        j = top
+        while j > 0 and ok[j - 1]:
+            j -= 1
+        if j > 0:
+            tried.append(("run_start", float(xs[j])))
         if k == len(xs) - 1:
             return float(xs[k]), None, tried, None
         a, b = xs[k], xs[k + 1]
-    else:             # the run of passes that holds the best passing value, toward smaller ones
-        top = int(np.argmax(np.where(ok, s.key, -np.inf)))
+    else:             # the run of passes that holds it, followed toward smaller values
         k = top
         while k > 0 and ok[k - 1]:
             k -= 1
@@ -263,7 +268,7 @@ def longest_stub(design: Design, *, tap: str | None = None, nominal: bool = Fals
     question = f"longest stub that keeps the bus passing: {which}"
     method = (f"grid of {shortest * 1e3:.2f} mm and {GRID} lengths from {lo * 1e3:.2f} to {longest * 1e3:.2f} mm, "
               f"then brackets cut in {REFINE + 1} per batch down to {resolution * 1e3:.2f} mm; the answer ends the "
-              "run of passing grid lengths that starts at the shortest; the answer and the length just beyond "
+              "run of passing grid lengths that holds the best margin; the answer and the length just beyond "
               "confirmed by the check")
     res = _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, "length",
                      lambda x: {p: x for p in paths})
@@ -274,11 +279,15 @@ def longest_stub(design: Design, *, tap: str | None = None, nominal: bool = Fals
 def _finish_1d(design, paths, ans, beyond, best, tried, nominal, question, method, key, values_at, make=None):
     """Confirm a 1-D answer with the check (stepping back if the check disagrees) and build the result."""
     notes = []
+    for t in [t for t in tried if t[0] == "run_start"]:
+        tried.remove(t)
+        notes.append(f"the passing run starts at {t[1]:.6g} m: shorter values on the grid fail (the response is "
+                     "not monotonic)")
     at = (lambda x: make(x)) if make else (lambda x: moved(design, values_at(x)))
     if ans is None:
         d = at(best)
         ok, head, worst = _confirm(d, nominal)
-        return SolveResult(question, design.bus.name, best, "m", False, head, None, None, worst,
+        return SolveResult(question, design.bus.name, best, "m", bool(ok), head, None, None, worst,
                            _candidates_json(tried, key), _analysis(d, nominal), method,
                            notes + ["no value in the range passes; the best one tried is shown"])
     # the batch shares one time step over all candidates; the check chooses its own: confirm, and where the

@@ -72,8 +72,9 @@ def test_longest_stub_passes_at_the_answer_and_fails_just_beyond():
     assert at.worst["headroom"] == res.margin_at_answer
     assert beyond.worst["headroom"] == res.margin_beyond
     assert 0 < res.beyond - res.answer <= res.resolution
-    # every grid length below the answer passed
+    # every grid length below the answer passed (no note of a passing run that starts further out)
     assert all(c["passes"] for c in res.candidates if c["length"] <= res.answer)
+    assert not any("passing run starts" in n for n in res.notes)
 
 
 def test_longest_single_stub_nominal():
