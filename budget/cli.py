@@ -758,7 +758,7 @@ def build_parser() -> argparse.ArgumentParser:
     co.set_defaults(func=cmd_correlate)
 
     from .cli_solve import add_commands   # sensitivity, solve stub|termination|drops
-    add_commands(sub)
+    add_commands(sub, load_design=load_design, positive=_positive)
     return p
 
 

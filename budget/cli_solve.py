@@ -38,10 +38,9 @@ def _emit(args, doc, text):
 
 def cmd_sensitivity(args) -> int:
     """Derivatives of the worst headroom, ranked by what each tolerance costs (busbudget.sensitivity/1)."""
-    from .cli import load_design
     from .sensitivity import sensitivities
 
-    design = load_design(args.design)
+    design = args.load_design(args.design)
     res = _run(args, "busbudget sensitivity",
                lambda bar: sensitivities(design, paths=args.paths, nominal=args.nominal, progress=bar))
     _emit(args, res.to_json(), res.text())
@@ -49,10 +48,9 @@ def cmd_sensitivity(args) -> int:
 
 
 def cmd_solve_stub(args) -> int:
-    from .cli import load_design
     from .solve import longest_stub
 
-    design = load_design(args.design)
+    design = args.load_design(args.design)
     res = _run(args, "busbudget solve stub",
                lambda bar: longest_stub(design, tap=args.tap, nominal=args.nominal, longest=args.longest,
                                         progress=bar))
@@ -61,10 +59,9 @@ def cmd_solve_stub(args) -> int:
 
 
 def cmd_solve_termination(args) -> int:
-    from .cli import load_design
     from .solve import SCHEMES, best_termination
 
-    design = load_design(args.design)
+    design = args.load_design(args.design)
     res = _run(args, "busbudget solve termination",
                lambda bar: best_termination(design, series=args.series, schemes=args.scheme or SCHEMES,
                                             nominal=args.nominal, progress=bar))
@@ -73,10 +70,9 @@ def cmd_solve_termination(args) -> int:
 
 
 def cmd_solve_drops(args) -> int:
-    from .cli import load_design
     from .solve import most_drops, smallest_spacing
 
-    design = load_design(args.design)
+    design = args.load_design(args.design)
     if args.spacing is not None:
         res = _run(args, "busbudget solve drops",
                    lambda bar: most_drops(design, args.spacing, nominal=args.nominal, progress=bar))
@@ -108,10 +104,15 @@ def _common(p) -> None:
     p.add_argument("--no-progress", action="store_true", help="no progress bar even on a terminal")
 
 
-def add_commands(sub) -> None:
-    """Add ``sensitivity`` and ``solve`` to the ``busbudget`` sub-command parser ``sub``."""
-    from .cli import _positive
+def add_commands(sub, *, load_design, positive) -> None:
+    """Add ``sensitivity`` and ``solve`` to the ``busbudget`` sub-command parser ``sub``.
+
+    load_design(text) -> Design (a path or ``example:NAME``) and positive (an argparse type for a
+    whole number >= 1) come from :mod:`budget.cli`, which imports this module (not the reverse).
+    """
     from .solve import MAX_DROPS, SCHEMES, SERIES
+
+    _positive = positive
 
     se = sub.add_parser(
         "sensitivity", help="derivative of the worst margin with respect to every toleranced value, ranked",
@@ -123,7 +124,7 @@ def add_commands(sub) -> None:
     se.add_argument("--path", action="append", default=[], dest="paths", metavar="PATH",
                     help="also differentiate with respect to this value (a dotted path, e.g. tap.U3.stub.length); "
                          "repeatable")
-    se.set_defaults(func=cmd_sensitivity)
+    se.set_defaults(func=cmd_sensitivity, load_design=load_design)
 
     so = sub.add_parser(
         "solve", help="direct answers: longest stub, best termination, most drops / smallest spacing",
@@ -141,7 +142,7 @@ def add_commands(sub) -> None:
     st.add_argument("--longest", type=_length, default=None, metavar="LENGTH",
                     help="upper end of the searched range (default: the length whose delay is the rise time, at "
                          "least twice the longest stub)")
-    st.set_defaults(func=cmd_solve_stub)
+    st.set_defaults(func=cmd_solve_stub, load_design=load_design)
 
     te = ss.add_parser("termination", help="the termination scheme and preferred values with the best worst case",
                        description="Tries parallel-to-a-rail, Thevenin pair, RC and series-at-the-drivers schemes "
@@ -151,7 +152,7 @@ def add_commands(sub) -> None:
     te.add_argument("--series", choices=SERIES, default="E24", help="preferred-number series (default E24)")
     te.add_argument("--scheme", action="append", choices=SCHEMES, default=[],
                     help="try only this scheme (repeatable; default: every scheme)")
-    te.set_defaults(func=cmd_solve_termination)
+    te.set_defaults(func=cmd_solve_termination, load_design=load_design)
 
     dr = ss.add_parser("drops", help="the most devices at a spacing, or the smallest spacing for a count",
                        description="Devices as copies of the design's taps in trunk order, evenly spaced along a "
@@ -162,7 +163,7 @@ def add_commands(sub) -> None:
                    help="the most devices the trunk carries at this spacing, e.g. '2.5 cm'")
     g.add_argument("--count", type=_positive, metavar="N",
                    help=f"the smallest spacing at which N devices pass (2 to {MAX_DROPS})")
-    dr.set_defaults(func=cmd_solve_drops)
+    dr.set_defaults(func=cmd_solve_drops, load_design=load_design)
 
 
 __all__ = ["add_commands"]
