@@ -61,6 +61,18 @@ def test_a_batch_of_candidates_scores_as_the_check_does():
     assert s.variant_head.shape == (3, len(s.labels))
 
 
+def test_a_candidate_scores_the_same_alone_or_in_a_batch():
+    # a 1 mm stub is shorter than one time step (lumped pi), a 79 mm one is not: the engine models a line one
+    # way for a whole sweep, so score() sweeps them apart; with the same step and window each candidate gives
+    # the same bits alone as in the batch
+    d = load(SHORT)
+    p = "tap.MEM3.stub.length"
+    both = score(d, {p: np.array([0.001, 0.079])}, nominal=True)
+    for i, x in enumerate((0.001, 0.079)):
+        alone = score(d, {p: np.array([x])}, nominal=True, dt=both.dt, t_stop=both.t_stop)
+        assert alone.head[0] == both.head[i] and alone.worst[0] == both.worst[i]
+
+
 def test_longest_stub_passes_at_the_answer_and_fails_just_beyond():
     d = load(SHORT)
     res = longest_stub(d)
