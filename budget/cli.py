@@ -802,6 +802,9 @@ def build_parser() -> argparse.ArgumentParser:
                     help="t_switch/t_valid tolerance in %% of the 10-90 %% edge time (default 10%%)")
     _measured_options(co)
     co.set_defaults(func=cmd_correlate)
+
+    from .cli_solve import add_commands   # sensitivity, solve stub|termination|drops
+    add_commands(sub, load_design=load_design, positive=_positive)
     return p
 
 

@@ -75,17 +75,26 @@ CLI_ROWS = {
     "capture-is-a-device": (ROBUST, ["judge", "--capture", "/dev/zero", "--driver", "TX", "--edge", "rise"],
                             ["/dev/zero", "not a regular file"]),
     "thousand-taps-corners": (_many_taps(1000), ["check", "--corners"], ["taps", "at most"]),
+    # design aids (busbudget solve ..., busbudget sensitivity); a two-word command is written "solve stub"
+    "solve-stub-without-stubs": (ROBUST, ["solve stub"], ["no tap has a stub"]),
+    "solve-stub-unknown-tap": (ROBUST, ["solve stub", "--tap", "NOPE"], ["unknown tap 'NOPE'"]),
+    "solve-stub-negative-range": (ROBUST, ["solve stub", "--longest", "-1 cm"], ["--longest"]),
+    "solve-drops-one-device": (ROBUST, ["solve drops", "--count", "1"], ["--count", "from 2"]),
+    "solve-drops-negative-spacing": (ROBUST, ["solve drops", "--spacing", "-1 cm"], ["--spacing"]),
+    "solve-drops-both-questions": (ROBUST, ["solve drops", "--spacing", "1 cm", "--count", "3"], ["--count"]),
+    "solve-termination-unknown-series": (ROBUST, ["solve termination", "--series", "E7"], ["--series"]),
+    "sensitivity-unknown-path": (ROBUST, ["sensitivity", "--path", "lines.nope.z0"], ["--path", "lines.nope.z0"]),
 }
 
 
 @pytest.mark.parametrize("case", CLI_ROWS, ids=list(CLI_ROWS))
 def test_cli_bad_input_exits_2_with_a_message(case, tmp_path, capsys):
     text, argv, fragments = CLI_ROWS[case]
-    cmd, rest = argv[0], argv[1:]
+    cmd, rest = argv[0].split(), argv[1:]
     if text is not None:
         rest = [_design(tmp_path, text)] + rest
     t0 = time.monotonic()
-    code = main([cmd, *rest])
+    code = main([*cmd, *rest])
     elapsed = time.monotonic() - t0
     out, err = capsys.readouterr()
     assert code == 2, (code, err[-2000:])

@@ -335,12 +335,16 @@ def parser_options() -> dict[str, set[str]]:
             out |= set(a.option_strings) if a.option_strings else {a.dest}
         return out
 
+    def walk(p, prefix):
+        for action in p._actions:
+            if isinstance(action, argparse._SubParsersAction):
+                for name, sub in action.choices.items():
+                    out[prefix + name] = names(sub)
+                    walk(sub, prefix + name + " ")     # nested commands: "solve stub"
+
     parser = build_parser()
     out = {TOP: names(parser)}
-    for action in parser._actions:
-        if isinstance(action, argparse._SubParsersAction):
-            for name, sub in action.choices.items():
-                out[name] = names(sub)
+    walk(parser, "")
     return out
 
 
