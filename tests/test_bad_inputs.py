@@ -74,6 +74,7 @@ CLI_ROWS = {
     "values-file-is-a-device": (ROBUST, ["check", "--values", "/dev/zero"], ["/dev/zero", "not a regular file"]),
     "capture-is-a-device": (ROBUST, ["judge", "--capture", "/dev/zero", "--driver", "TX", "--edge", "rise"],
                             ["/dev/zero", "not a regular file"]),
+    "explain-unknown-receiver": (ROBUST, ["explain", "--receiver", "NOPE"], ["--receiver", "NOPE", "receivers"]),
     "thousand-taps-corners": (_many_taps(1000), ["check", "--corners"], ["taps", "at most"]),
 }
 
