@@ -77,6 +77,7 @@ class CheckReport:
     coverage: dict = field(default_factory=dict)
     out_of_box: list = field(default_factory=list)
     anatomy: dict | None = None
+    warnings: list = field(default_factory=list)
 
     @property
     def verdict(self) -> str:
@@ -191,6 +192,8 @@ JSON_EXTENSIONS = {
     "out_of_box": "design values outside their tolerance interval: [{path, value, min, max}] (SI); "
                   "evaluated as given, flagged",
     "assumptions / safety": "what the model assumes; results are estimates",
+    "warnings": "notes on the model's validity for this design, e.g. a cross-section outside its formula's "
+                "stated range (the result is still given; treat it as a rough estimate)",
     "anatomy": "the worst case's margin split into dc + reflection + allocations (budget.anatomy); "
                "dc_remedies when it fails on the DC level alone",
 }
@@ -231,6 +234,7 @@ def to_json(report: CheckReport) -> dict:
         "coverage": report.coverage,
         "out_of_box": report.out_of_box,
         **({"anatomy": report.anatomy} if report.anatomy is not None else {}),
+        "warnings": list(report.warnings),
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
         "assumptions": list(ASSUMPTIONS),
         "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
@@ -411,6 +415,11 @@ def to_text(report: CheckReport) -> str:
             unit = report.units.get(o["path"], "")
             L.append(f"   {o['path']} = {si(o['value'], unit) if isinstance(o['value'], float) else o['value']}"
                      f", box {si(o['min'], unit)} .. {si(o['max'], unit)}")
+
+    if report.warnings:
+        L.append("")
+        L.append("warnings (results still given; treat them as rough estimates there):")
+        L += [f"   {w_}" for w_ in report.warnings]
 
     if len(a) > 1:
         L.append("")
