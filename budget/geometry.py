@@ -533,10 +533,10 @@ def line(kind: str, **dims) -> CrossSection:
     v = _parse_dims(kind, dims)
     with np.errstate(all="ignore"):   # far outside a formula's range: caught below as a non-finite result
         out = evaluate(kind, v)
-    if not all(np.isfinite(x) and x > 0.0 for x in out.values()):
+    if not all(np.isfinite(x[0]) and x[0] > 0.0 for x in out.values()):
         raise ArgumentError(f"{kind}: the formula gives no finite impedance for {v} "
                             f"(dimensions far outside its range)")
-    out = {k: float(x) for k, x in out.items()}
+    out = {k: float(x[0]) for k, x in out.items()}
     z0, er_eff = out.pop("z0"), out.pop("er_eff")
     coupled = {}
     if kind in COUPLED_KINDS:
@@ -552,7 +552,12 @@ def evaluate(kind: str, v: Mapping[str, object]) -> dict:
     Returns {"z0", "er_eff"} and, for coupled kinds, {"z_odd", "z_even", "z_diff", "er_eff_even"}
     (floats or arrays, [ohm] and [-]); z0 is the odd-mode impedance of one line for coupled kinds.
     No checks and no error handling: :func:`line` and the design files (:func:`derive`) do those.
+
+    Every input is taken as a 1-D float64 array (a float becomes one element), so one variant gives
+    the same bits alone as inside any batch: numpy's array loops and Python's float arithmetic
+    (``x ** 4``) can differ in the last bit.  Returns 1-D arrays.
     """
+    v = {k: np.atleast_1d(np.asarray(x, dtype=float)) for k, x in v.items()}
     er = v["er"]
     if kind == "microstrip":
         z0, er_eff = microstrip(v["w"], v["h"], v["t"], er)
@@ -598,9 +603,11 @@ def derive(kind: str, v: Mapping[str, object], *, differential: bool):
     ok = np.isfinite(z0) & (z0 > 0) & np.isfinite(er_eff) & (er_eff >= 1.0)
     z0 = np.where(ok, z0, np.nan)
     delay = delay_from_er_eff(er_eff)
-    if np.ndim(z0) == 0:
-        return float(z0), float(delay), float(er_eff), notes
-    return z0, np.broadcast_to(delay, z0.shape).copy(), np.broadcast_to(er_eff, z0.shape).copy(), notes
+    shape = np.broadcast_shapes(z0.shape, np.shape(er_eff))
+    z0, delay, er_eff = (np.broadcast_to(x, shape).copy() for x in (z0, delay, er_eff))
+    if all(np.ndim(x) == 0 for x in v.values()):          # one variant: floats, as in a scalar design
+        return float(z0[0]), float(delay[0]), float(er_eff[0]), notes
+    return z0, delay, er_eff, notes
 
 
 __all__ = ["KINDS", "COUPLED_KINDS", "SINGLE_ENDED_KINDS", "DIFFERENTIAL_KINDS", "CrossSection", "line", "evaluate", "derive", "delay_from_er_eff", "coax_z0", "two_wire_z0",

@@ -574,8 +574,8 @@ def geometry_notes(design: "Design") -> list:
                 lo, hi = design.tolerances[p]
                 dims[p] = list(dims[p]) + list(np.where(combos[:, j] == 1, hi, lo))
         n = max(len(v) for v in dims.values())
-        arrays = {p.rpartition(".")[2]: np.resize(np.asarray(v, dtype=float), n) if len(v) == n
-                  else np.full(n, v[0]) for p, v in dims.items()}
+        arrays = {p.rpartition(".")[2]: np.asarray(v, dtype=float) if len(v) == n else np.full(n, float(v[0]))
+                  for p, v in dims.items()}
         _, _, _, notes = derive(kind, arrays, differential=st.signaling == "differential")
         out += [f"[lines.{name}] geometry: {n_}" for n_ in notes]
     return out

@@ -109,7 +109,9 @@ class Rule:
 
     kind: "positive" | "nonneg" | "at_least_one" | "plausible" (path), "less" (paths[0] < paths[1]),
     "reach_high" / "reach_low" (threshold paths[0] against the sources paths[1:]), "delay" (length
-    paths[0], line delay or er_eff paths[1], edges paths[2:4]).  ``text``: the reason given.
+    paths[0], line delay or er_eff paths[1], edges paths[2:4]), "geometry" (a line's cross-section
+    dimensions, in budget.geometry.KINDS order; ``text`` holds the kind, ``flag`` differential).
+    ``text``: the reason given.
     """
     kind: str
     paths: tuple

@@ -250,3 +250,33 @@ def test_c_library_layer_sets_and_batches_geometry_values():
         assert info.value.status == "BB_ERR_VALUE" and "lines.trunk.geometry.h" in str(info.value)
     finally:
         capi.close(h)
+
+
+def test_a_variant_gives_the_same_bits_alone_or_in_a_batch():
+    d = budget.load(GEO_PATH)
+    w = np.random.default_rng(7).uniform(0.32e-3, 0.40e-3, 257)
+    h = np.random.default_rng(8).uniform(0.18e-3, 0.22e-3, 257)
+    batch = d.with_values({"lines.trunk.geometry.w": w, "lines.trunk.geometry.h": h}).lines["trunk"]
+    for i in range(0, 257, 16):
+        one = d.with_values({"lines.trunk.geometry.w": float(w[i]), "lines.trunk.geometry.h": float(h[i])})
+        assert one.lines["trunk"].z0 == batch.z0[i] and one.lines["trunk"].delay == batch.delay[i]
+        assert geometry.line("microstrip", w=w[i], h=h[i], t="35 um", er=4.3).z0 == batch.z0[i]
+
+
+def test_the_envelope_spans_every_corner_of_the_geometry_box():
+    # z0 falls with w and rises with h (HJ80): all-minimum / all-maximum would miss both extremes
+    from budget.line_model import envelope_range
+    from budget.netlist import tolerance_envelope
+
+    d = budget.load(GEO_PATH)
+    z_lo, z_hi, d_lo, d_hi, _, _ = envelope_range(tolerance_envelope(d).lines["trunk"])
+    box = d.tolerances
+    for w in box["lines.trunk.geometry.w"]:
+        for h in box["lines.trunk.geometry.h"]:
+            for er in box["lines.trunk.geometry.er"]:
+                lt = d.with_values({"lines.trunk.geometry.w": w, "lines.trunk.geometry.h": h,
+                                    "lines.trunk.geometry.er": er}).lines["trunk"]
+                assert z_lo <= lt.z0 <= z_hi and d_lo <= lt.delay <= d_hi
+    narrow_thick = d.with_values({"lines.trunk.geometry.w": box["lines.trunk.geometry.w"][0],
+                                  "lines.trunk.geometry.h": box["lines.trunk.geometry.h"][1]}).lines["trunk"].z0
+    assert narrow_thick > d.with_values({p: box[p][1] for p in box}).lines["trunk"].z0
