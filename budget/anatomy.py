@@ -212,8 +212,8 @@ def _clean_margin_of(design, driver, receiver, edge, values, n):
 def _solve_scale(design, driver, receiver, edge, paths, base, up: bool):
     """Smallest change of scale s (s >= 1 if up, else s <= 1) of ``paths`` that makes dc + allocations reach
     min_margin: two batched sweeps (a coarse log grid, then a fine grid inside the bracketing step).
-    Returns (scale, settled level [V] there) on the passing side, or (None, best level) if no scale within
-    1/100..100 reaches it."""
+    Returns (scale, settled level [V] there) on the passing side, or (None, the best level reached) if no
+    scale within 1/100..100 reaches it."""
     need = float(design.noise_budget.min_margin)
     span = _SCALE_SPAN if up else 1.0 / _SCALE_SPAN
     grid = np.geomspace(1.0, span, _COARSE)
@@ -226,14 +226,14 @@ def _solve_scale(design, driver, receiver, edge, paths, base, up: bool):
     ok = np.flatnonzero(clean >= need)
     if ok.size == 0:
         best = int(np.argmax(clean))
-        return None, float(level[best]), float(grid[best])
+        return None, float(level[best])
     k = int(ok[0])
     if k == 0:
-        return 1.0, float(level[0]), 1.0
+        return 1.0, float(level[0])
     fine = np.geomspace(grid[k - 1], grid[k], _FINE)
     clean_f, level_f = run(fine)
     j = int(np.flatnonzero(clean_f >= need)[0]) if np.any(clean_f >= need) else _FINE - 1
-    return float(fine[j]), float(level_f[j]), float(fine[j])
+    return float(fine[j]), float(level_f[j])
 
 
 def dc_remedies(design, a: MarginAnatomy, values: dict | None = None) -> dict:
@@ -264,7 +264,7 @@ def dc_remedies(design, a: MarginAnatomy, values: dict | None = None) -> dict:
     path = f"parts.{dpart}.{key}"
     base = {path: float(P[path])}
     try:
-        scale, level, _ = _solve_scale(vdesign, a.driver, a.receiver, a.edge, [path], base, up=False)
+        scale, _ = _solve_scale(vdesign, a.driver, a.receiver, a.edge, [path], base, up=False)
     except DesignError:
         scale = None
     needed = None if scale is None else base[path] * scale
@@ -284,7 +284,7 @@ def dc_remedies(design, a: MarginAnatomy, values: dict | None = None) -> dict:
         paths = [f"termination.{i}.{k}" for i, k in term_paths]
         base = {p: float(P[p]) for p in paths}
         try:
-            scale, level, _ = _solve_scale(vdesign, a.driver, a.receiver, a.edge, paths, base, up=True)
+            scale, _ = _solve_scale(vdesign, a.driver, a.receiver, a.edge, paths, base, up=True)
         except DesignError:
             scale = None
         out["termination"] = {
