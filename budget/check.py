@@ -337,12 +337,17 @@ def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -
                         for name, (v, unit) in design.noise_budget.allocations.items()},
         "min_margin": min_margin, "settle_band": float(design.noise_budget.settle_band),
     }
+    from .anatomy import report_anatomy
+    from .model import geometry_notes
+
+    anatomy = report_anatomy(design, variants, row).to_json()
     return CheckReport(design=design.bus.name, source=str(design.source), signaling=design.bus.signaling,
                        passed=bool(passed), worst=worst, results=results, analyses=analyses,
                        tolerances={p: [float(lo), float(hi)] for p, (lo, hi) in design.tolerances.items()},
                        budget=budget, variants=variants, units=_units(design),
                        receivers=[r for r in receivers if any(x["receiver"] == r for x in results)],
-                       coverage=coverage, out_of_box=out_of_box(design))
+                       coverage=coverage, out_of_box=out_of_box(design), anatomy=anatomy,
+                       warnings=geometry_notes(design))
 
 
 def _units(design) -> dict:

@@ -134,6 +134,19 @@ def cmd_check(args) -> int:
     return EXIT_PASS if report.passed else EXIT_FAIL
 
 
+def cmd_explain(args) -> int:
+    """Margin anatomy (DC level + reflections + allocations) of chosen cases; exit 0 all pass, 1 any fails."""
+    import json
+
+    from .explain import explain, text
+
+    design, measured = _measured_design(args)
+    report = _run_check(args, _pinned(design, measured))
+    doc = explain(design, report, driver=args.driver, receiver=args.receiver, edge=args.edge)
+    sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n" if args.json else text(doc))
+    return EXIT_PASS if doc["verdict"] == "pass" else EXIT_FAIL
+
+
 def cmd_plot(args) -> int:
     """Pictures: pin waveforms for one driver and edge, or the driver x receiver margin map."""
     from . import plots
@@ -668,6 +681,22 @@ def build_parser() -> argparse.ArgumentParser:
     _analysis_options(c)
     _measured_options(c)
     c.set_defaults(func=cmd_check)
+
+    ex = sub.add_parser(
+        "explain", help="where the margin goes: DC level + reflections + allocations, per driver/receiver/edge",
+        description="Run the check and split the margin of each (driver, receiver, edge) -- its worst analysed "
+                    "case -- into the DC level at the pin against the threshold, the reflection excursion and "
+                    "the budget allocations; a case that fails on its DC level alone says so and names the "
+                    "driver strength or termination that would reach it.  Exit 0 = every case shown passes, "
+                    "1 = one fails, 2 = bad input.")
+    ex.add_argument("design", help="design file, or example:NAME")
+    ex.add_argument("--driver", help="only cases driven by this tap")
+    ex.add_argument("--receiver", help="only cases received at this tap")
+    ex.add_argument("--edge", choices=("rise", "fall"), help="only this edge")
+    ex.add_argument("--json", action="store_true", help="write the JSON document (schema busbudget.explain/1)")
+    _analysis_options(ex)
+    _measured_options(ex, log=False)
+    ex.set_defaults(func=cmd_explain)
 
     pl = sub.add_parser(
         "plot", help="pictures (PNG/SVG/PDF): pin waveforms with corners, or the driver x receiver margin map",

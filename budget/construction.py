@@ -129,11 +129,16 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
 
     if not isinstance(lines, Mapping):
         raise c.err(f"expected a table of lines, got {type(lines).__name__}", "lines")
-    delay_keys = {}
+    delay_keys, geometry_kinds = {}, {}
     for name, ln in lines.items():
         t = f"lines.{name}"
         c.text(name, "lines", "name")
         ln = c.kind(ln, LineType, t)
+        if ln.geometry is not None:
+            geometry_kinds[name] = _geometry(c, ln, t, signaling)
+            delay_keys[name] = "geometry"
+            c.qty(ln.r_dc, "resistance_per_length", t, "r_dc", f"{t}.r_dc", required=False)
+            continue
         c.qty(ln.z0, "resistance", t, "z0", f"{t}.z0")
         delay, er = ln.delay, ln.er_eff
         if delay is not None and er is not None and _same_delay(delay, er):
@@ -240,16 +245,65 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
 
     noise = _budget(c, budget if budget is not None else Budget())
     rules = validation.rules_for({n: (roles[n], part_keys[n]) for n in roles}, delay_keys, seg_out, tap_out,
-                                 term_out, c.dims)
+                                 term_out, c.dims, geometry=geometry_kinds, differential=signaling == "differential")
     st = Structure(
         source=source, bus_name=bus_name, signaling=signaling, parts=frozen(roles),
         part_keys=frozen(part_keys), lines=tuple(lines), delay_keys=frozen(delay_keys),
         segments=tuple(seg_out), taps=tuple(tap_out), terminations=tuple(term_out),
-        dimensions=frozen(c.dims), tolerances=frozen({}), budget=noise, rules=rules,
+        dimensions=frozen(c.dims), tolerances=frozen({}), budget=noise, geometry_kinds=frozen(geometry_kinds),
+        rules=rules,
         rule_index=frozen(validation.index_rules(rules)),
     )
     st = replace(st, tolerances=frozen(_tolerances(c, tolerances, st)))
     return st, frozen(c.params)
+
+
+def _geometry(c: _Ctx, ln: LineType, t: str, signaling: str) -> str:
+    """Read a line's ``geometry`` table into the values ``{t}.geometry.KEY``; returns its kind.
+
+    Lengths with units [m], er plain [-]; the kind must describe a single line in a single-ended
+    design and a pair in a differential one.  A view's z0/delay/er_eff (derived from this same
+    geometry) may come along; any other z0, delay or er_eff beside a geometry is refused.
+    """
+    from .geometry import DIFFERENTIAL_KINDS, KINDS, SINGLE_ENDED_KINDS, derive
+
+    g = ln.geometry
+    gt = f"{t}.geometry"
+    if not isinstance(g, Mapping):
+        raise c.err(f"expected a table {{ kind = ..., ... }}, got {type(g).__name__}", t, "geometry")
+    kind = c.text(g.get("kind"), gt, "kind")
+    if kind not in KINDS:
+        raise c.err(f"unknown cross-section kind {kind!r}; kinds are: {', '.join(KINDS)}", gt, "kind")
+    keys = KINDS[kind]
+    for k in g:
+        if k != "kind" and k not in keys:
+            raise c.err(f"unknown key for kind {kind!r}; allowed keys here: {', '.join(('kind', *keys))}", gt, k)
+    if signaling == "differential" and kind not in DIFFERENTIAL_KINDS:
+        raise c.err(f"a differential design needs the pair's differential impedance; kind {kind!r} is a single "
+                    f"line: use one of {', '.join(DIFFERENTIAL_KINDS)}", gt, "kind")
+    if signaling != "differential" and kind not in SINGLE_ENDED_KINDS:
+        raise c.err(f"kind {kind!r} describes a coupled pair (its differential impedance); a single-ended "
+                    f"design uses one of {', '.join(SINGLE_ENDED_KINDS)} (or set [bus] signaling = "
+                    "\"differential\")", gt, "kind")
+    dims = {}
+    for k in keys:
+        if k not in g:
+            raise c.err(f"missing key; kind {kind!r} takes: {', '.join(keys)}", gt, k)
+        dims[k] = c.qty(g[k], "dimensionless" if k == "er" else "length", gt, k, f"{gt}.{k}")
+    given = [k for k in ("z0", "delay", "er_eff") if getattr(ln, k) is not None]
+    if given:
+        # a design's own view carries the derived values: accept them only if they are exactly those
+        view = False
+        try:
+            z0, delay, er, _ = derive(kind, dims, differential=signaling == "differential")
+            view = all(isinstance(getattr(ln, k), (int, float)) and float(getattr(ln, k)) == v
+                       for k, v in (("z0", z0), ("delay", delay), ("er_eff", er)) if getattr(ln, k) is not None)
+        except Exception:   # noqa: BLE001 -- any failure means "not a view": refused below
+            view = False
+        if not view:
+            raise c.err(f"give either geometry or {given[0]} (z0 with delay or er_eff), not both: the geometry "
+                        "sets z0 and the delay", t, given[0])
+    return kind
 
 
 def _same_delay(delay, er) -> bool:

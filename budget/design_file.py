@@ -14,6 +14,7 @@ from pathlib import Path
 
 from .errors import DesignError
 from .files import read_regular_file
+from .geometry import KINDS as GEOMETRY_KINDS
 from .limits import MAX_FILE_BYTES   # re-exported here, where it always was
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, TERM_KEYS, Budget, Bus,
@@ -29,7 +30,8 @@ _SCHEMA = {
     "parts.receiver": (_PART_BASE - {"ref_load"}) | set(RECEIVE_KEYS),   # a receiver has no timing reference
     "parts.transceiver": _PART_BASE | set(DRIVE_KEYS) | set(RECEIVE_KEYS),
     "parts.ref_load": set(REF_LOAD_KEYS),
-    "lines": set(LINE_KEYS),
+    "lines": set(LINE_KEYS) | {"geometry"},
+    **{f"lines.geometry.{kind}": {"kind", *keys} for kind, keys in GEOMETRY_KINDS.items()},
     "segment": {"from", "to", "line", "length"},
     "tap": {"name", "node", "part", "stub"},
     "tap.stub": {"line", "length"},
@@ -45,7 +47,8 @@ def accepted_keys() -> dict[str, set[str]]:
 
     Labels: "" (top-level tables), "bus", "edge", "parts.driver",
     "parts.receiver", "parts.transceiver", "parts.ref_load", "lines",
-    "segment", "tap", "tap.stub", "termination.parallel",
+    "lines.geometry.KIND" (one per cross-section kind: microstrip, stripline, coax, two_wire,
+    edge_coupled_microstrip, edge_coupled_stripline), "segment", "tap", "tap.stub", "termination.parallel",
     "termination.thevenin", "termination.rc", "termination.series", "budget".
     ``[tolerances]`` and ``[budget.extra]`` take any key (dotted paths,
     allocation names).  The loader's own unknown-key checks use this data.
@@ -141,8 +144,13 @@ def _arguments(doc: dict, source: str) -> dict:
         t = f"lines.{name}"
         ln = r.table(ln, t)
         r.known(ln, "lines", t)
-        if "z0" not in ln:
-            raise r.err("missing key", t, "z0")
+        if "geometry" in ln:
+            g = r.table(ln["geometry"], f"{t}.geometry")
+            kind = g.get("kind")
+            if kind in GEOMETRY_KINDS:        # the model names a missing or unknown kind
+                r.known(g, f"lines.geometry.{kind}", f"{t}.geometry")
+        elif "z0" not in ln:
+            raise r.err("missing key (or give geometry = { kind = ..., ... })", t, "z0")
         lines[name] = LineType(**ln)
 
     segments = []

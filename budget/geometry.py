@@ -60,6 +60,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from contextvars import ContextVar
 from dataclasses import dataclass, field
 from typing import Mapping
 
@@ -117,30 +118,58 @@ class CrossSection:
         return out
 
 
-def delay_from_er_eff(er_eff: float) -> float:
-    """Delay per length [s/m] of a TEM/quasi-TEM wave, sqrt(er_eff)/c (docs/references.md B2)."""
-    return math.sqrt(er_eff) / C_LIGHT
+def delay_from_er_eff(er_eff):
+    """Delay per length [s/m] of a TEM/quasi-TEM wave, sqrt(er_eff)/c (docs/references.md B2); floats or arrays."""
+    return np.sqrt(er_eff) / C_LIGHT
 
 
-def _warn(formula: str, what: str, value: float, lo: float | None, hi: float | None) -> None:
-    if (lo is not None and value < lo) or (hi is not None and value > hi):
-        rng = f"{'' if lo is None else f'{lo:g} <= '}{what}{'' if hi is None else f' <= {hi:g}'}"
-        warnings.warn(f"{formula}: {what} = {value:.4g} is outside {rng}, the range its accuracy is "
-                      f"stated for; treat the result as a rough estimate", GeometryRangeWarning, stacklevel=5)
+# Where range notes go: None = warnings.warn (GeometryRangeWarning); a list = appended to it as text
+# (design files: the notes are shown in the check report instead of being raised).  A ContextVar,
+# so threads evaluating designs at once keep their own notes.
+_NOTES: ContextVar[list | None] = ContextVar("geometry_range_notes", default=None)
+
+
+def _warn(formula: str, what: str, value, lo: float | None, hi: float | None, where=True) -> None:
+    """Note (or warn) when ``value`` (a float or an array over variants; only where ``where``) leaves lo..hi."""
+    value = np.asarray(value, dtype=float)
+    bad = np.zeros(value.shape, dtype=bool)
+    if lo is not None:
+        bad |= value < lo
+    if hi is not None:
+        bad |= value > hi
+    bad &= np.asarray(where, dtype=bool)
+    if not np.any(bad):
+        return
+    out = value[bad] if value.ndim else value.reshape(1)
+    # the value furthest outside the range, in ratio
+    far = out[np.argmax(np.abs(np.log(np.abs(out) / (lo if lo is not None and np.any(out < lo) else hi))))] \
+        if np.all(out > 0) else out[0]
+    rng = f"{'' if lo is None else f'{lo:g} <= '}{what}{'' if hi is None else f' <= {hi:g}'}"
+    some = f" (in {int(bad.sum())} of {bad.size} variants)" if value.ndim and bad.size > 1 else ""
+    msg = (f"{formula}: {what} = {float(far):.4g}{some} is outside {rng}, the range its accuracy is "
+           f"stated for; treat the result as a rough estimate")
+    notes = _NOTES.get()
+    if notes is None:
+        warnings.warn(msg, GeometryRangeWarning, stacklevel=5)
+    elif msg not in notes:
+        notes.append(msg)
 
 
 # ---------------------------------------------------------------------------
 # coax and two-wire line: exact TEM solutions in a homogeneous dielectric
+#
+# Every formula below takes floats or numpy arrays over variants (elementwise, no Python loop), so
+# a design's toleranced or swept geometry is evaluated for a whole batch at once.
 
-def coax_z0(d: float, D: float, er: float) -> float:
+def coax_z0(d, D, er):
     """Coaxial line Z0 [ohm] = eta0/(2 pi sqrt(er)) ln(D/d); exact for TEM (Pozar 2012 Table 2.1; docs/references.md B3).
 
     d [m] inner conductor diameter, D [m] inside diameter of the shield, er [-].
     """
-    return ETA0 / (2.0 * math.pi * math.sqrt(er)) * math.log(D / d)
+    return ETA0 / (2.0 * np.pi * np.sqrt(er)) * np.log(D / d)
 
 
-def two_wire_z0(d: float, s: float, er: float) -> float:
+def two_wire_z0(d, s, er):
     """Two-wire line Z0 [ohm] = eta0/(pi sqrt(er)) acosh(s/d); exact for round wires (Pozar 2012 Table 2.1; B4).
 
     d [m] wire diameter, s [m] centre spacing (> d), er [-] permittivity of a
@@ -149,41 +178,42 @@ def two_wire_z0(d: float, s: float, er: float) -> float:
     and the insulation's er, to be taken from the cable maker's velocity
     factor vf: er = 1/vf**2); the twist itself is ignored.
     """
-    return ETA0 / (math.pi * math.sqrt(er)) * math.acosh(s / d)
+    return ETA0 / (np.pi * np.sqrt(er)) * np.arccosh(s / d)
 
 
 # ---------------------------------------------------------------------------
 # microstrip: Hammerstad & Jensen 1980
 
-def _hj_z01(u: float) -> float:
+def _hj_z01(u):
     """Air-filled microstrip Z0 [ohm] at width/height u [-] ([HJ80] eq. for Z01; docs/references.md B6)."""
-    f = 6.0 + (2.0 * math.pi - 6.0) * math.exp(-((30.666 / u) ** 0.7528))
-    return ETA0 / (2.0 * math.pi) * math.log(f / u + math.sqrt(1.0 + (2.0 / u) ** 2))
+    f = 6.0 + (2.0 * np.pi - 6.0) * np.exp(-((30.666 / u) ** 0.7528))
+    return ETA0 / (2.0 * np.pi) * np.log(f / u + np.sqrt(1.0 + (2.0 / u) ** 2))
 
 
-def _hj_er_eff(u: float, er: float) -> float:
+def _hj_er_eff(u, er):
     """Zero-thickness microstrip effective permittivity [-] ([HJ80]; docs/references.md B6)."""
-    a = (1.0 + math.log((u ** 4 + (u / 52.0) ** 2) / (u ** 4 + 0.432)) / 49.0
-         + math.log(1.0 + (u / 18.1) ** 3) / 18.7)
+    a = (1.0 + np.log((u ** 4 + (u / 52.0) ** 2) / (u ** 4 + 0.432)) / 49.0
+         + np.log(1.0 + (u / 18.1) ** 3) / 18.7)
     b = 0.564 * ((er - 0.9) / (er + 3.0)) ** 0.053
     return (er + 1.0) / 2.0 + (er - 1.0) / 2.0 * (1.0 + 10.0 / u) ** (-a * b)
 
 
-def _hj_widths(u: float, t_h: float, er: float) -> tuple[float, float]:
+def _hj_widths(u, t_h, er):
     """Thickness-corrected widths (u1 in air, ur in the dielectric) [-] ([HJ80] thickness correction).
 
     du1 = (t/pi) ln(1 + 4e / (t coth^2 sqrt(6.517 u))), t normalised to h;
-    dur = du1 (1 + sech sqrt(er - 1)) / 2.
+    dur = du1 (1 + sech sqrt(er - 1)) / 2.  t = 0: no correction.
     """
-    if t_h == 0.0:
-        return u, u
+    thick = t_h > 0.0
+    ts = np.where(thick, t_h, 1.0)
     # ln(1 + A/t) written as ln(t + A) - ln(t): no overflow for very thin strips
-    du1 = t_h / math.pi * (math.log(t_h + 4.0 * math.e * math.tanh(math.sqrt(6.517 * u)) ** 2) - math.log(t_h))
-    dur = 0.5 * (1.0 + 1.0 / math.cosh(math.sqrt(er - 1.0))) * du1
+    du1 = np.where(thick, ts / np.pi * (np.log(ts + 4.0 * np.e * np.tanh(np.sqrt(6.517 * u)) ** 2) - np.log(ts)),
+                   0.0)
+    dur = 0.5 * (1.0 + 1.0 / np.cosh(np.sqrt(er - 1.0))) * du1
     return u + du1, u + dur
 
 
-def microstrip(w: float, h: float, t: float, er: float) -> tuple[float, float]:
+def microstrip(w, h, t, er):
     """Surface microstrip (z0 [ohm], er_eff [-]) by Hammerstad & Jensen 1980 with their thickness correction.
 
     w [m] strip width, h [m] dielectric height, t [m] strip thickness (0 allowed),
@@ -204,33 +234,37 @@ def microstrip(w: float, h: float, t: float, er: float) -> tuple[float, float]:
     u1, ur = _hj_widths(u, t_h, er)
     e_r = _hj_er_eff(ur, er)
     z01_r, z01_1 = _hj_z01(ur), _hj_z01(u1)
-    return z01_r / math.sqrt(e_r), e_r * (z01_1 / z01_r) ** 2
+    return z01_r / np.sqrt(e_r), e_r * (z01_1 / z01_r) ** 2
 
 
 # ---------------------------------------------------------------------------
 # stripline: Cohn 1954 exact zero-thickness, Wheeler 1978 thickness factor
 
-def _k_ratio_sech_tanh(x: float) -> float:
+def _sech2(x):
+    """sech^2 x [-], 0 beyond x = 350 (where cosh overflows)."""
+    small = x < 350.0
+    return np.where(small, 1.0 / np.cosh(np.where(small, x, 0.0)) ** 2, 0.0)
+
+
+def _k_ratio_sech_tanh(x):
     """K(sech x)/K(tanh x) with complete elliptic integrals of the first kind, accurate for any x > 0.
 
     scipy.special.ellipkm1(p) = K(m = 1 - p); with k = sech x, m = sech^2 x and
     1 - m = tanh^2 x, so neither integral loses digits near m = 1.
     """
-    th2 = math.tanh(x) ** 2
-    sh2 = 1.0 / math.cosh(x) ** 2 if x < 350.0 else 0.0
-    return float(ellipkm1(th2) / ellipkm1(sh2))
+    return ellipkm1(np.tanh(x) ** 2) / ellipkm1(_sech2(x))
 
 
-def stripline_cohn_z0(w: float, b: float, er: float) -> float:
+def stripline_cohn_z0(w, b, er):
     """Exact zero-thickness centred stripline Z0 [ohm] (Cohn 1954; Pozar 2012 section 3.7; docs/references.md B9).
 
     Z0 = eta0/(4 sqrt(er)) K(k)/K(k'), k = sech(pi w/(2b)), k' = tanh(pi w/(2b)).
     w [m] strip width, b [m] ground-to-ground spacing, er [-].
     """
-    return ETA0 / (4.0 * math.sqrt(er)) * _k_ratio_sech_tanh(math.pi * w / (2.0 * b))
+    return ETA0 / (4.0 * np.sqrt(er)) * _k_ratio_sech_tanh(np.pi * w / (2.0 * b))
 
 
-def stripline_wheeler_z0(w: float, b: float, t: float, er: float) -> float:
+def stripline_wheeler_z0(w, b, t, er):
     """Centred stripline Z0 [ohm] with strip thickness, Wheeler 1978 ([Wh78], from memory).
 
     w [m], b [m] ground-to-ground spacing, t [m] thickness (< b), er [-].
@@ -241,21 +275,19 @@ def stripline_wheeler_z0(w: float, b: float, t: float, er: float) -> float:
     Wheeler states about 0.5 % accuracy for W'/(b-t) < 10.
     """
     x = t / b
-    if x > 0.0:
-        m = 2.0 / (1.0 + (2.0 / 3.0) * x / (1.0 - x))
-        # ln(p^2 + q^m) as a log-sum-exp, so that very thin strips do not underflow to ln(0)
-        lx = math.log(x)
-        log_sum = float(np.logaddexp(2.0 * (lx - math.log(2.0 - x)),
-                                     m * (math.log(0.0796) + lx - math.log(w / b + 1.1 * x))))
-        dw = (b - t) * x / (math.pi * (1.0 - x)) * (1.0 - 0.5 * log_sum)
-    else:
-        dw = 0.0
+    thick = x > 0.0
+    xs = np.where(thick, x, 0.5)
+    m = 2.0 / (1.0 + (2.0 / 3.0) * xs / (1.0 - xs))
+    # ln(p^2 + q^m) as a log-sum-exp, so that very thin strips do not underflow to ln(0)
+    lx = np.log(xs)
+    log_sum = np.logaddexp(2.0 * (lx - np.log(2.0 - xs)), m * (np.log(0.0796) + lx - np.log(w / b + 1.1 * xs)))
+    dw = np.where(thick, (b - t) * xs / (np.pi * (1.0 - xs)) * (1.0 - 0.5 * log_sum), 0.0)
     r = (b - t) / (w + dw)
-    p = 8.0 / math.pi * r
-    return 30.0 / math.sqrt(er) * math.log(1.0 + 4.0 / math.pi * r * (p + math.sqrt(p * p + 6.27)))
+    p = 8.0 / np.pi * r
+    return 30.0 / np.sqrt(er) * np.log(1.0 + 4.0 / np.pi * r * (p + np.sqrt(p * p + 6.27)))
 
 
-def stripline(w: float, b: float, t: float, er: float) -> float:
+def stripline(w, b, t, er):
     """Centred (symmetric) stripline Z0 [ohm]: Cohn's exact t = 0 value times Wheeler's thickness factor.
 
     Z0(w, b, t) = Z0_Cohn(w, b) * Z0_Wheeler(w, b, t) / Z0_Wheeler(w, b, 0).
@@ -265,43 +297,43 @@ def stripline(w: float, b: float, t: float, er: float) -> float:
     Warns for t/b > 0.25 or W'/(b - t) > 10 (Wheeler's range, from memory).
     """
     z = stripline_cohn_z0(w, b, er)
-    if t > 0.0:
-        name = "stripline thickness factor (Wheeler 1978)"
-        _warn(name, "t/b", t / b, None, 0.25)
-        _warn(name, "w/(b-t)", w / (b - t), None, 10.0)
-        z *= stripline_wheeler_z0(w, b, t, er) / stripline_wheeler_z0(w, b, 0.0, er)
-    return z
+    thick = t > 0.0
+    name = "stripline thickness factor (Wheeler 1978)"
+    _warn(name, "t/b", t / b, None, 0.25, where=thick)
+    _warn(name, "w/(b-t)", w / (b - t), None, 10.0, where=thick)
+    factor = stripline_wheeler_z0(w, b, t, er) / stripline_wheeler_z0(w, b, 0.0, er)
+    return z * np.where(thick, factor, 1.0)
 
 
 # ---------------------------------------------------------------------------
 # edge-coupled stripline: Cohn 1955
 
-def _k_ratio(k2: float, kp2: float) -> float:
+def _k_ratio(k2, kp2):
     """K(k')/K(k) from m = k^2 and m' = k'^2 = 1 - k^2 given separately (no cancellation) [-]."""
-    return float(ellipkm1(k2) / ellipkm1(kp2))
+    return ellipkm1(k2) / ellipkm1(kp2)
 
 
-def coupled_stripline_cohn(w: float, s: float, b: float, er: float) -> tuple[float, float]:
+def coupled_stripline_cohn(w, s, b, er):
     """Exact zero-thickness edge-coupled stripline (z_even, z_odd) [ohm] (Cohn 1955, [Cohn55]; Pozar 2012 section 7.6).
 
     Z0e = eta0/(4 sqrt(er)) K(ke')/K(ke), ke = tanh(pi w/(2b)) tanh(pi (w+s)/(2b));
     Z0o = eta0/(4 sqrt(er)) K(ko')/K(ko), ko = tanh(pi w/(2b)) coth(pi (w+s)/(2b)).
     w [m] strip width, s [m] gap, b [m] ground-to-ground spacing, er [-].
     """
-    a, c = math.pi * w / (2.0 * b), math.pi * (w + s) / (2.0 * b)
-    ta, tc = math.tanh(a), math.tanh(c)
-    sa = 1.0 / math.cosh(a) ** 2 if a < 350.0 else 0.0  # sech^2
-    sc = 1.0 / math.cosh(c) ** 2 if c < 350.0 else 0.0
+    a, c = np.pi * w / (2.0 * b), np.pi * (w + s) / (2.0 * b)
+    ta, tc = np.tanh(a), np.tanh(c)
+    sa, sc = _sech2(a), _sech2(c)
     ke2, kep2 = (ta * tc) ** 2, sa + sc - sa * sc  # 1 - ta^2 tc^2 without cancellation
     ko2 = (ta / tc) ** 2
     # 1 - ko^2 = (tc - ta)(tc + ta)/tc^2 and tc - ta = sinh(c - a)/(cosh a cosh c)
-    diff = math.sinh(c - a) * math.sqrt(sa * sc) if c < 350.0 else (1.0 - ta)
+    near = c < 350.0
+    diff = np.where(near, np.sinh(np.where(near, c - a, 0.0)) * np.sqrt(sa * sc), 1.0 - ta)
     kop2 = diff * (tc + ta) / tc ** 2
-    scale = ETA0 / (4.0 * math.sqrt(er))
+    scale = ETA0 / (4.0 * np.sqrt(er))
     return scale * _k_ratio(ke2, kep2), scale * _k_ratio(ko2, kop2)
 
 
-def _cohn55_thick(w: float, s: float | None, b: float, t: float) -> float:
+def _cohn55_thick(w, s, b, t):
     """Cohn's thick-strip parallel-plate + fringing form, times sqrt(er) [ohm]; s=None: isolated strip.
 
     Z = 30 pi (b - t) / (w + (b Cf/(2 pi)) A), Cf = 2 ln((2b-t)/(b-t)) - (t/b) ln(t(2b-t)/(b-t)^2),
@@ -310,19 +342,19 @@ def _cohn55_thick(w: float, s: float | None, b: float, t: float) -> float:
     Returns (z_even, z_odd) for a gap, z for s=None.
     """
     r = t / b
-    cf = 2.0 * math.log((2.0 - r) / (1.0 - r))
-    if r > 0.0:
-        cf -= r * math.log(r * (2.0 - r) / (1.0 - r) ** 2)
-    fringe = b * cf / (2.0 * math.pi)
+    thick = r > 0.0
+    rs = np.where(thick, r, 0.5)
+    cf = 2.0 * np.log((2.0 - r) / (1.0 - r)) - np.where(thick, rs * np.log(rs * (2.0 - rs) / (1.0 - rs) ** 2), 0.0)
+    fringe = b * cf / (2.0 * np.pi)
     if s is None:
-        return 30.0 * math.pi * (b - t) / (w + fringe * 2.0)
-    q = math.pi * s / (2.0 * b)
-    a_e = 1.0 + math.log(1.0 + math.tanh(q)) / math.log(2.0)
-    a_o = 1.0 + math.log(1.0 + 1.0 / math.tanh(q)) / math.log(2.0)
-    return (30.0 * math.pi * (b - t) / (w + fringe * a_e), 30.0 * math.pi * (b - t) / (w + fringe * a_o))
+        return 30.0 * np.pi * (b - t) / (w + fringe * 2.0)
+    q = np.pi * s / (2.0 * b)
+    a_e = 1.0 + np.log(1.0 + np.tanh(q)) / np.log(2.0)
+    a_o = 1.0 + np.log(1.0 + 1.0 / np.tanh(q)) / np.log(2.0)
+    return (30.0 * np.pi * (b - t) / (w + fringe * a_e), 30.0 * np.pi * (b - t) / (w + fringe * a_o))
 
 
-def edge_coupled_stripline(w: float, s: float, b: float, t: float, er: float) -> tuple[float, float]:
+def edge_coupled_stripline(w, s, b, t, er):
     """Edge-coupled centred stripline (z_even, z_odd) [ohm] of one line.
 
     t = 0: Cohn 1955's exact conformal-mapping result (:func:`coupled_stripline_cohn`).
@@ -335,22 +367,22 @@ def edge_coupled_stripline(w: float, s: float, b: float, t: float, er: float) ->
     w/b < 0.35 or t/b > 0.1 (from memory).  er_eff = er.
     """
     ze, zo = coupled_stripline_cohn(w, s, b, er)
-    if t > 0.0:
-        name = "edge-coupled stripline thickness factor (Cohn 1955)"
-        _warn(name, "w/b", w / b, 0.35, None)
-        _warn(name, "t/b", t / b, None, 0.1)
-        wh = stripline_wheeler_z0(w, b, t, er) / stripline_wheeler_z0(w, b, 0.0, er)
-        single = _cohn55_thick(w, None, b, t) / _cohn55_thick(w, None, b, 0.0)
-        (ze_t, zo_t), (ze_0, zo_0) = _cohn55_thick(w, s, b, t), _cohn55_thick(w, s, b, 0.0)
-        ze *= wh * (ze_t / ze_0) / single
-        zo *= wh * (zo_t / zo_0) / single
+    thick = t > 0.0
+    name = "edge-coupled stripline thickness factor (Cohn 1955)"
+    _warn(name, "w/b", w / b, 0.35, None, where=thick)
+    _warn(name, "t/b", t / b, None, 0.1, where=thick)
+    wh = stripline_wheeler_z0(w, b, t, er) / stripline_wheeler_z0(w, b, 0.0, er)
+    single = _cohn55_thick(w, None, b, t) / _cohn55_thick(w, None, b, 0.0)
+    (ze_t, zo_t), (ze_0, zo_0) = _cohn55_thick(w, s, b, t), _cohn55_thick(w, s, b, 0.0)
+    ze = ze * np.where(thick, wh * (ze_t / ze_0) / single, 1.0)
+    zo = zo * np.where(thick, wh * (zo_t / zo_0) / single, 1.0)
     return ze, zo
 
 
 # ---------------------------------------------------------------------------
 # edge-coupled microstrip: Kirschning & Jansen 1984 (static part)
 
-def coupled_microstrip_kj(u: float, g: float, er: float) -> tuple[float, float, float, float]:
+def coupled_microstrip_kj(u, g, er):
     """Zero-thickness edge-coupled microstrip (z_even, z_odd [ohm], er_eff_even, er_eff_odd [-]).
 
     Static equations of Kirschning & Jansen 1984 ([KJ84], from memory), built on
@@ -359,34 +391,34 @@ def coupled_microstrip_kj(u: float, g: float, er: float) -> tuple[float, float, 
     0.1 <= g <= 10, 1 <= er <= 18.
     """
     e0 = _hj_er_eff(u, er)
-    z0 = _hj_z01(u) / math.sqrt(e0)
+    z0 = _hj_z01(u) / np.sqrt(e0)
     # even-mode effective permittivity
-    v = u * (20.0 + g * g) / (10.0 + g * g) + g * math.exp(-g)
+    v = u * (20.0 + g * g) / (10.0 + g * g) + g * np.exp(-g)
     e_even = _hj_er_eff(v, er)
     # odd-mode effective permittivity
-    a_o = 0.7287 * (e0 - (er + 1.0) / 2.0) * (1.0 - math.exp(-0.179 * u))
+    a_o = 0.7287 * (e0 - (er + 1.0) / 2.0) * (1.0 - np.exp(-0.179 * u))
     b_o = 0.747 * er / (0.15 + er)
-    c_o = b_o - (b_o - 0.207) * math.exp(-0.414 * u)
-    d_o = 0.593 + 0.694 * math.exp(-0.562 * u)
-    e_odd = ((er + 1.0) / 2.0 + a_o - e0) * math.exp(-c_o * g ** d_o) + e0
+    c_o = b_o - (b_o - 0.207) * np.exp(-0.414 * u)
+    d_o = 0.593 + 0.694 * np.exp(-0.562 * u)
+    e_odd = ((er + 1.0) / 2.0 + a_o - e0) * np.exp(-c_o * g ** d_o) + e0
     # impedances
     q1 = 0.8695 * u ** 0.194
     q2 = 1.0 + 0.7519 * g + 0.189 * g ** 2.31
-    q3 = 0.1975 + (16.6 + (8.4 / g) ** 6) ** -0.387 + math.log(g ** 10 / (1.0 + (g / 3.4) ** 10)) / 241.0
-    q4 = 2.0 * q1 / q2 / (math.exp(-g) * u ** q3 + (2.0 - math.exp(-g)) * u ** -q3)
-    q5 = 1.794 + 1.14 * math.log(1.0 + 0.638 / (g + 0.517 * g ** 2.43))
-    q6 = 0.2305 + math.log(g ** 10 / (1.0 + (g / 5.8) ** 10)) / 281.3 + math.log(1.0 + 0.598 * g ** 1.154) / 5.1
+    q3 = 0.1975 + (16.6 + (8.4 / g) ** 6) ** -0.387 + np.log(g ** 10 / (1.0 + (g / 3.4) ** 10)) / 241.0
+    q4 = 2.0 * q1 / q2 / (np.exp(-g) * u ** q3 + (2.0 - np.exp(-g)) * u ** -q3)
+    q5 = 1.794 + 1.14 * np.log(1.0 + 0.638 / (g + 0.517 * g ** 2.43))
+    q6 = 0.2305 + np.log(g ** 10 / (1.0 + (g / 5.8) ** 10)) / 281.3 + np.log(1.0 + 0.598 * g ** 1.154) / 5.1
     q7 = (10.0 + 190.0 * g * g) / (1.0 + 82.3 * g ** 3)
-    q8 = math.exp(-6.5 - 0.95 * math.log(g) - (g / 0.15) ** 5)
-    q9 = math.log(q7) * (q8 + 1.0 / 16.5)
-    q10 = q4 - q5 / q2 * math.exp(q6 * math.log(u) / u ** q9)
-    k = z0 / ETA0 * math.sqrt(e0)
-    z_even = z0 * math.sqrt(e0 / e_even) / (1.0 - k * q4)
-    z_odd = z0 * math.sqrt(e0 / e_odd) / (1.0 - k * q10)
+    q8 = np.exp(-6.5 - 0.95 * np.log(g) - (g / 0.15) ** 5)
+    q9 = np.log(q7) * (q8 + 1.0 / 16.5)
+    q10 = q4 - q5 / q2 * np.exp(q6 * np.log(u) / u ** q9)
+    k = z0 / ETA0 * np.sqrt(e0)
+    z_even = z0 * np.sqrt(e0 / e_even) / (1.0 - k * q4)
+    z_odd = z0 * np.sqrt(e0 / e_odd) / (1.0 - k * q10)
     return z_even, z_odd, e_even, e_odd
 
 
-def edge_coupled_microstrip(w: float, s: float, h: float, t: float, er: float) -> tuple[float, float, float, float]:
+def edge_coupled_microstrip(w, s, h, t, er):
     """Edge-coupled surface microstrip (z_even, z_odd [ohm], er_eff_even, er_eff_odd [-]) of one line.
 
     Kirschning & Jansen 1984 static equations (:func:`coupled_microstrip_kj`);
@@ -499,42 +531,85 @@ def line(kind: str, **dims) -> CrossSection:
         The geometry is outside the formula's stated range (see each function).
     """
     v = _parse_dims(kind, dims)
-    try:
-        return _evaluate(kind, v)
-    except (OverflowError, ZeroDivisionError, ValueError) as exc:  # math range/domain errors far out of range
-        if isinstance(exc, ArgumentError):
-            raise
-        raise ArgumentError(f"{kind}: the formula cannot be evaluated for {v} ({exc}): the dimensions are "
-                            f"far outside its range") from None
-
-
-def _evaluate(kind: str, v: dict) -> CrossSection:
-    er = v["er"]
-    coupled = {}
-    if kind == "microstrip":
-        z0, er_eff = microstrip(v["w"], v["h"], v["t"], er)
-    elif kind == "stripline":
-        z0, er_eff = stripline(v["w"], v["b"], v["t"], er), er
-    elif kind == "coax":
-        z0, er_eff = coax_z0(v["d"], v["D"], er), er
-    elif kind == "two_wire":
-        z0, er_eff = two_wire_z0(v["d"], v["s"], er), er
-    elif kind == "edge_coupled_microstrip":
-        ze, zo, ee, eo = edge_coupled_microstrip(v["w"], v["s"], v["h"], v["t"], er)
-        z0, er_eff = zo, eo
-        coupled = dict(z_odd=zo, z_even=ze, z_diff=2.0 * zo, er_eff_even=ee, delay_even=delay_from_er_eff(ee))
-    else:  # edge_coupled_stripline
-        ze, zo = edge_coupled_stripline(v["w"], v["s"], v["b"], v["t"], er)
-        z0, er_eff = zo, er
-        coupled = dict(z_odd=zo, z_even=ze, z_diff=2.0 * zo, er_eff_even=er, delay_even=delay_from_er_eff(er))
-    values = [z0, er_eff, *coupled.values()]
-    if not all(math.isfinite(x) and x > 0.0 for x in values):
+    with np.errstate(all="ignore"):   # far outside a formula's range: caught below as a non-finite result
+        out = evaluate(kind, v)
+    if not all(np.isfinite(x[0]) and x[0] > 0.0 for x in out.values()):
         raise ArgumentError(f"{kind}: the formula gives no finite impedance for {v} "
                             f"(dimensions far outside its range)")
-    return CrossSection(kind=kind, dims=v, z0=float(z0), delay=delay_from_er_eff(er_eff), er_eff=float(er_eff),
-                        formula=_FORMULAS[kind], **{k: float(x) for k, x in coupled.items()})
+    out = {k: float(x[0]) for k, x in out.items()}
+    z0, er_eff = out.pop("z0"), out.pop("er_eff")
+    coupled = {}
+    if kind in COUPLED_KINDS:
+        coupled = dict(z_odd=out["z_odd"], z_even=out["z_even"], z_diff=out["z_diff"],
+                       er_eff_even=out["er_eff_even"], delay_even=float(delay_from_er_eff(out["er_eff_even"])))
+    return CrossSection(kind=kind, dims=v, z0=z0, delay=float(delay_from_er_eff(er_eff)), er_eff=er_eff,
+                        formula=_FORMULAS[kind], **coupled)
 
 
-__all__ = ["KINDS", "COUPLED_KINDS", "CrossSection", "line", "delay_from_er_eff", "coax_z0", "two_wire_z0",
+def evaluate(kind: str, v: Mapping[str, object]) -> dict:
+    """The formulas of ``kind`` on checked dimensions ``v`` (key -> float [m] / [-] or arrays over variants).
+
+    Returns {"z0", "er_eff"} and, for coupled kinds, {"z_odd", "z_even", "z_diff", "er_eff_even"}
+    (floats or arrays, [ohm] and [-]); z0 is the odd-mode impedance of one line for coupled kinds.
+    No checks and no error handling: :func:`line` and the design files (:func:`derive`) do those.
+
+    Every input is taken as a 1-D float64 array (a float becomes one element), so one variant gives
+    the same bits alone as inside any batch: numpy's array loops and Python's float arithmetic
+    (``x ** 4``) can differ in the last bit.  Returns 1-D arrays.
+    """
+    v = {k: np.atleast_1d(np.asarray(x, dtype=float)) for k, x in v.items()}
+    er = v["er"]
+    if kind == "microstrip":
+        z0, er_eff = microstrip(v["w"], v["h"], v["t"], er)
+        return {"z0": z0, "er_eff": er_eff}
+    if kind == "stripline":
+        return {"z0": stripline(v["w"], v["b"], v["t"], er), "er_eff": er}
+    if kind == "coax":
+        return {"z0": coax_z0(v["d"], v["D"], er), "er_eff": er}
+    if kind == "two_wire":
+        return {"z0": two_wire_z0(v["d"], v["s"], er), "er_eff": er}
+    if kind == "edge_coupled_microstrip":
+        ze, zo, ee, eo = edge_coupled_microstrip(v["w"], v["s"], v["h"], v["t"], er)
+    else:  # edge_coupled_stripline
+        ze, zo = edge_coupled_stripline(v["w"], v["s"], v["b"], v["t"], er)
+        ee = eo = er
+    return {"z0": zo, "er_eff": eo, "z_odd": zo, "z_even": ze, "z_diff": 2.0 * zo, "er_eff_even": ee}
+
+
+#: kinds that describe one conductor over its return, and those that describe a pair
+SINGLE_ENDED_KINDS = ("microstrip", "stripline", "coax", "two_wire")
+DIFFERENTIAL_KINDS = ("two_wire", "edge_coupled_microstrip", "edge_coupled_stripline")
+
+
+def derive(kind: str, v: Mapping[str, object], *, differential: bool):
+    """(z0 [ohm], delay [s/m], er_eff [-], notes) of a design file's ``geometry`` table, for one or many variants.
+
+    v: key -> float or 1-D array over variants (already checked: positive lengths, er >= 1, D > d...).
+    differential: the design is differential, so z0 is the pair's differential impedance
+    (``z_diff = 2 z_odd`` for the coupled kinds; a two-wire line's own impedance is already the
+    impedance between its wires) and the delay the odd (differential) mode's.  The formulas'
+    range warnings come back as ``notes`` (text) instead of being raised.  A result that is not
+    finite and positive is NaN in z0 (the caller refuses it, naming the table).
+    """
+    notes: list = []
+    token = _NOTES.set(notes)
+    try:
+        with np.errstate(all="ignore"):
+            out = evaluate(kind, v)
+    finally:
+        _NOTES.reset(token)
+    z0 = out["z_diff"] if differential and kind in COUPLED_KINDS else out["z0"]
+    er_eff = out["er_eff"]
+    ok = np.isfinite(z0) & (z0 > 0) & np.isfinite(er_eff) & (er_eff >= 1.0)
+    z0 = np.where(ok, z0, np.nan)
+    delay = delay_from_er_eff(er_eff)
+    shape = np.broadcast_shapes(z0.shape, np.shape(er_eff))
+    z0, delay, er_eff = (np.broadcast_to(x, shape).copy() for x in (z0, delay, er_eff))
+    if all(np.ndim(x) == 0 for x in v.values()):          # one variant: floats, as in a scalar design
+        return float(z0[0]), float(delay[0]), float(er_eff[0]), notes
+    return z0, delay, er_eff, notes
+
+
+__all__ = ["KINDS", "COUPLED_KINDS", "SINGLE_ENDED_KINDS", "DIFFERENTIAL_KINDS", "CrossSection", "line", "evaluate", "derive", "delay_from_er_eff", "coax_z0", "two_wire_z0",
            "microstrip", "stripline", "stripline_cohn_z0", "stripline_wheeler_z0", "coupled_stripline_cohn",
            "edge_coupled_stripline", "coupled_microstrip_kj", "edge_coupled_microstrip", "ETA0"]

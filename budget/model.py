@@ -179,16 +179,21 @@ class Part(_ByValue):
 
 @dataclass(frozen=True, eq=False, kw_only=True)
 class LineType(_ByValue):
-    """A line cross-section: z0 [ohm], delay [s/m] or er_eff [-] (one of them), r_dc [ohm/m] (absent: 0).
+    """A line cross-section: z0 [ohm], delay [s/m] or er_eff [-] (one of them), r_dc [ohm/m] (absent: 0);
+    or, instead of z0 and delay, ``geometry``: {"kind": one of budget.geometry.KINDS, and that kind's
+    keys (lengths [m] or unit strings, er [-])}.
 
     In a design's view ``delay`` is always set (from er_eff if that was given:
-    t_pd = sqrt(er_eff) / c, docs/references.md B2) and ``er_eff`` is set only if it was given.
+    t_pd = sqrt(er_eff) / c, docs/references.md B2) and ``er_eff`` is set only if it was given;
+    for a geometry line z0, delay and er_eff are all derived from the geometry (budget.geometry.derive;
+    a differential design takes the pair's differential impedance) and ``geometry`` holds its SI values.
     """
-    z0: Any
+    z0: Any = None
     delay: Any = None
     er_eff: Any = None
     r_dc: Any = None
     name: str | None = None
+    geometry: Any = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -280,13 +285,14 @@ class Structure(_ByValue):
     parts: Mapping[str, str]                 # part name -> role
     part_keys: Mapping[str, frozenset]       # part name -> numeric keys present
     lines: tuple[str, ...]
-    delay_keys: Mapping[str, str]            # line -> "delay" | "er_eff"
+    delay_keys: Mapping[str, str]            # line -> "delay" | "er_eff" | "geometry"
     segments: tuple[tuple[str, str, str], ...]   # (from, to, line)
     taps: tuple[tuple[str, str, str, str | None], ...]  # (name, node, part, stub line)
     terminations: tuple[tuple[str, str | None, str | None], ...]  # (type, node, tap)
     dimensions: Mapping[str, str]            # param path -> dimension
     tolerances: Mapping[str, tuple[float, float]]
     budget: Budget
+    geometry_kinds: Mapping[str, str] = field(default_factory=dict)   # geometry line -> its kind
     rules: tuple = field(default=(), compare=False, repr=False)
     rule_index: Mapping[str, tuple] = field(default_factory=dict, compare=False, repr=False)
 
@@ -359,6 +365,9 @@ class Design:
         lines = {}
         for name in st.lines:
             t = f"lines.{name}"
+            if st.delay_keys[name] == "geometry":
+                lines[name] = _geometry_view(st, name, P)
+                continue
             if st.delay_keys[name] == "delay":
                 delay, er = P[f"{t}.delay"], None
             else:
@@ -528,6 +537,48 @@ class Design:
         P = dict(self.params)
         P.update(values)
         return Design._assemble(self.structure, P)
+
+
+def _geometry_view(st: Structure, name: str, P: Mapping[str, Any]) -> LineType:
+    """The view of a geometry line: z0, delay, er_eff derived for every variant at once (numpy)."""
+    from .geometry import KINDS, derive
+
+    t = f"lines.{name}"
+    kind = st.geometry_kinds[name]
+    dims = {k: P[f"{t}.geometry.{k}"] for k in KINDS[kind]}
+    z0, delay, er_eff, _ = derive(kind, dims, differential=st.signaling == "differential")
+    return LineType(name=name, z0=z0, delay=delay, er_eff=er_eff, r_dc=P.get(f"{t}.r_dc", 0.0),
+                    geometry=frozen({"kind": kind, **dims}))
+
+
+def geometry_notes(design: "Design") -> list:
+    """The cross-section formulas' range warnings for a design's geometry lines, as text.
+
+    Evaluated over the nominal values and every corner of the toleranced geometry values of each
+    line (at most 2**10 corners per line), so a box that leaves a formula's stated range is named.
+    """
+    from itertools import product
+
+    from .geometry import KINDS, derive
+
+    st = design.structure
+    out = []
+    for name, kind in st.geometry_kinds.items():
+        t = f"lines.{name}"
+        paths = [f"{t}.geometry.{k}" for k in KINDS[kind]]
+        dims = {p: [design.params[p]] for p in paths}
+        boxed = [p for p in paths if p in design.tolerances][:10]
+        if boxed:
+            combos = np.array(list(product((0, 1), repeat=len(boxed))))
+            for j, p in enumerate(boxed):
+                lo, hi = design.tolerances[p]
+                dims[p] = list(dims[p]) + list(np.where(combos[:, j] == 1, hi, lo))
+        n = max(len(v) for v in dims.values())
+        arrays = {p.rpartition(".")[2]: np.asarray(v, dtype=float) if len(v) == n else np.full(n, float(v[0]))
+                  for p, v in dims.items()}
+        _, _, _, notes = derive(kind, arrays, differential=st.signaling == "differential")
+        out += [f"[lines.{name}] geometry: {n_}" for n_ in notes]
+    return out
 
 
 def _value_of(value, dim: str, src: str, path: str):

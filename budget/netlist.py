@@ -157,6 +157,7 @@ def tolerance_envelope(design: Design, values=None) -> Design:
         if p in design.tolerances:
             lo, hi = min(lo, design.tolerances[p][0]), max(hi, design.tolerances[p][1])
         span[p] = np.array([lo, hi])
+    span = _geometry_corners(design, span)
     # every value here is a validated nominal, a validated tolerance limit or a validated swept value:
     # no second check (the envelope only sets the time step, window and line modelling)
     env = design._with_values_trusted(span)
@@ -165,6 +166,29 @@ def tolerance_envelope(design: Design, values=None) -> Design:
             _ENVELOPES.clear()
         _ENVELOPES[key] = (design.structure, env)
     return env
+
+
+MAX_ENVELOPE_GEOMETRY = 10   # toleranced geometry values whose every corner the envelope holds (2**10 variants)
+
+
+def _geometry_corners(design: Design, span: dict) -> dict:
+    """The envelope's spans with every corner of the toleranced geometry values (design files'
+    ``geometry`` lines), when there are two or more.
+
+    z0 and delay of a cross-section are not monotonic in all its dimensions together (a microstrip's
+    z0 rises with h and falls with w), so all-minimum / all-maximum would miss their extremes; the
+    corners catch them (the formulas are monotonic in each dimension over a tolerance range).  Other
+    values alternate minimum / maximum, so their extremes stay in the envelope.
+    """
+    geo = [p for p in span if ".geometry." in p][:MAX_ENVELOPE_GEOMETRY]
+    if len(geo) < 2:
+        return span
+    n = 2 ** len(geo)
+    codes = (np.arange(n)[:, None] >> np.arange(len(geo))[None, :]) & 1
+    out = {p: np.resize(a, n) for p, a in span.items()}
+    for j, p in enumerate(geo):
+        out[p] = np.where(codes[:, j] == 1, span[p][1], span[p][0])
+    return out
 
 
 def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,

@@ -76,6 +76,8 @@ class CheckReport:
     receivers: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
     out_of_box: list = field(default_factory=list)
+    anatomy: dict | None = None
+    warnings: list = field(default_factory=list)
 
     @property
     def verdict(self) -> str:
@@ -190,6 +192,10 @@ JSON_EXTENSIONS = {
     "out_of_box": "design values outside their tolerance interval: [{path, value, min, max}] (SI); "
                   "evaluated as given, flagged",
     "assumptions / safety": "what the model assumes; results are estimates",
+    "warnings": "notes on the model's validity for this design, e.g. a cross-section outside its formula's "
+                "stated range (the result is still given; treat it as a rough estimate)",
+    "anatomy": "the worst case's margin split into dc + reflection + allocations (budget.anatomy); "
+               "dc_remedies when it fails on the DC level alone",
 }
 
 
@@ -227,6 +233,8 @@ def to_json(report: CheckReport) -> dict:
         "variants": report.variants,
         "coverage": report.coverage,
         "out_of_box": report.out_of_box,
+        **({"anatomy": report.anatomy} if report.anatomy is not None else {}),
+        "warnings": list(report.warnings),
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
         "assumptions": list(ASSUMPTIONS),
         "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
@@ -389,6 +397,11 @@ def to_text(report: CheckReport) -> str:
     if w["violations"]:
         L.append(f"   violations there: {', '.join(w['violations'])}")
     L += [line.replace("      ", "   ", 1) for line in _describe_variant(report, w["corner"])]
+    if report.anatomy is not None:
+        from .anatomy import anatomy_text
+
+        L.append("   margin anatomy (dc + reflection + allocations = margin):")
+        L += anatomy_text(report.anatomy, indent="      ")
     failing = sorted({(r["driver"], r["receiver"], r["edge"]) for r in report.results if not r["pass"]})
     if failing:
         listed = ", ".join(f"{d}->{r} {e}" for d, r, e in failing[:8])
@@ -402,6 +415,11 @@ def to_text(report: CheckReport) -> str:
             unit = report.units.get(o["path"], "")
             L.append(f"   {o['path']} = {si(o['value'], unit) if isinstance(o['value'], float) else o['value']}"
                      f", box {si(o['min'], unit)} .. {si(o['max'], unit)}")
+
+    if report.warnings:
+        L.append("")
+        L.append("warnings (results still given; treat them as rough estimates there):")
+        L += [f"   {w_}" for w_ in report.warnings]
 
     if len(a) > 1:
         L.append("")

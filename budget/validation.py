@@ -72,6 +72,13 @@ PLAUSIBLE = {
                               "100 ns/m would need er_eff 900"),
     "er_eff": Range(1.0, 1000.0, "", 4.0, "effective permittivity",
                     "1 (air) to about 100 (ceramics)"),
+    "permittivity": Range(1.0, 1000.0, "", 4.0, "relative permittivity",
+                          "1 (air) to about 100 (ceramics)"),
+    "thickness": Range(0.0, 0.1, "m", 35e-6, "strip thickness",
+                       "copper is 5 um to a few hundred um thick; 0 = the zero-thickness formula"),
+    "dimension": Range(1e-7, 1.0, "m", 0.2e-3, "cross-section dimension",
+                       "trace widths, gaps, dielectric heights and wire or shield diameters are "
+                       "micrometres to centimetres"),
 }
 
 # the kind of each design-file key (the last part of a parameter path)
@@ -83,6 +90,9 @@ KEY_KINDS = {
     "length": "length", "rise": "edge_time", "fall": "edge_time", "t_stop": "window", "dt": "step",
     "r": "resistance", "v": "voltage", "c": "capacitance", "r_up": "resistance", "r_down": "resistance",
     "v_up": "voltage",
+    # cross-section geometry ([lines.NAME] geometry = {...}; budget.geometry.KINDS)
+    "w": "dimension", "h": "dimension", "b": "dimension", "s": "dimension", "d": "dimension",
+    "D": "dimension", "t": "thickness", "er": "permittivity",
 }
 
 
@@ -99,7 +109,9 @@ class Rule:
 
     kind: "positive" | "nonneg" | "at_least_one" | "plausible" (path), "less" (paths[0] < paths[1]),
     "reach_high" / "reach_low" (threshold paths[0] against the sources paths[1:]), "delay" (length
-    paths[0], line delay or er_eff paths[1], edges paths[2:4]).  ``text``: the reason given.
+    paths[0], line delay or er_eff paths[1], edges paths[2:4]), "geometry" (a line's cross-section
+    dimensions, in budget.geometry.KINDS order; ``text`` holds the kind, ``flag`` differential).
+    ``text``: the reason given.
     """
     kind: str
     paths: tuple
@@ -108,13 +120,15 @@ class Rule:
     flag: bool = False      # "reach_*": a ground-referenced element exists; "delay": paths[1] is er_eff
 
 
-def rules_for(parts, lines, segments, taps, terminations, dims) -> tuple:
+def rules_for(parts, lines, segments, taps, terminations, dims, *, geometry=None, differential=False) -> tuple:
     """Every rule of a design, in the order errors are reported.
 
-    parts: name -> (role, present numeric keys); lines: name -> delay key;
-    segments: (from, to, line); taps: (name, node, part, stub line);
-    terminations: (type, node, tap); dims: parameter path -> dimension.
+    parts: name -> (role, present numeric keys); lines: name -> delay key ("delay", "er_eff" or
+    "geometry"); segments: (from, to, line); taps: (name, node, part, stub line);
+    terminations: (type, node, tap); dims: parameter path -> dimension; geometry: geometry line ->
+    its kind; differential: the design is differential (geometry lines give z_diff).
     """
+    geometry = geometry or {}
     out = []
     for p in ("bus.t_stop", "bus.dt", "edge.rise", "edge.fall"):
         if p in dims:
@@ -135,6 +149,20 @@ def rules_for(parts, lines, segments, taps, terminations, dims) -> tuple:
             out.append(Rule("less", (f"{t}.v_min", f"{t}.v_max"), f"{t}.v_max", "must be above v_min"))
     for name, key in lines.items():
         t = f"lines.{name}"
+        if key == "geometry":
+            from .geometry import KINDS
+
+            for k in KINDS[geometry[name]]:
+                p = f"{t}.geometry.{k}"
+                if k == "er":
+                    out.append(Rule("at_least_one", (p,), p, "must be at least 1 (a relative permittivity)"))
+                elif k == "t":
+                    out.append(Rule("nonneg", (p,), p, "cannot be negative (0: a zero-thickness strip)"))
+                else:
+                    out.append(Rule("positive", (p,), p, "must be positive"))
+            if f"{t}.r_dc" in dims:
+                out.append(Rule("nonneg", (f"{t}.r_dc",), f"{t}.r_dc", "cannot be negative"))
+            continue
         out.append(Rule("positive", (f"{t}.z0",), f"{t}.z0", "must be positive"))
         if key == "delay":
             out.append(Rule("positive", (f"{t}.delay",), f"{t}.delay", "must be positive"))
@@ -158,6 +186,12 @@ def rules_for(parts, lines, segments, taps, terminations, dims) -> tuple:
     # plausibility of every value (after the sign rules, so a negative value gets the sign message)
     for p in dims:
         out.append(Rule("plausible", (p,), p))
+    # a geometry the formulas can evaluate, giving a plausible impedance
+    for name, kind in geometry.items():
+        from .geometry import KINDS
+
+        paths = tuple(f"lines.{name}.geometry.{k}" for k in KINDS[kind])
+        out.append(Rule("geometry", paths, paths[0], kind, flag=differential))
     # a line piece no one means: far longer than the edge
     edges = ("edge.rise", "edge.fall")
     for i, (_, _, line) in enumerate(segments):
@@ -196,8 +230,10 @@ def rules_for(parts, lines, segments, taps, terminations, dims) -> tuple:
 
 
 def _delay_rule(length_path, line, delay_key, edges):
-    return Rule("delay", (length_path, f"lines.{line}.{delay_key}", *edges), length_path,
-                flag=delay_key == "er_eff")
+    # a geometry line: sqrt(er)/c bounds its delay from above (er_eff <= er), enough for this sanity rule
+    key = "geometry.er" if delay_key == "geometry" else delay_key
+    return Rule("delay", (length_path, f"lines.{line}.{key}", *edges), length_path,
+                flag=delay_key in ("er_eff", "geometry"))
 
 
 def index_rules(rules) -> dict:
@@ -312,6 +348,9 @@ def evaluate(rule: Rule, P) -> None:
                                          f"and the terminations): this receiver can never see a "
                                          f"{'high' if high else 'low'}")
         return
+    if k == "geometry":
+        _geometry_rule(rule, P)
+        return
     if k == "delay":
         length, d, rise, fall = (np.asarray(P[p]) for p in rule.paths)
         delay = np.sqrt(d) / C0 if rule.flag else d
@@ -336,6 +375,40 @@ def evaluate(rule: Rule, P) -> None:
                                          f"{MAX_DELAY_IN_EDGES:.0f}): not a length this bus can mean{hint}")
         return
     raise AssertionError(f"unknown rule kind {k!r}")
+
+
+def _geometry_rule(rule: Rule, P) -> None:
+    """A cross-section the formulas can evaluate: its shape rules (D > d, s > d, t < b), then a finite,
+    plausible impedance from budget.geometry.derive (every variant at once)."""
+    from .geometry import derive
+
+    kind = rule.text
+    v = {p.rpartition(".")[2]: np.asarray(P[p], dtype=float) for p in rule.paths}
+    table = rule.paths[0].rpartition(".")[0]
+    for big, small, text in (("D", "d", "D (shield inside diameter) must exceed d (inner conductor diameter)"),
+                             ("s", "d", "s (centre spacing) must exceed d (wire diameter)")):
+        if big in v and small in v and kind in ("coax", "two_wire"):
+            ok = v[big] > v[small]
+            if not np.all(ok):
+                raise RuleFailed(f"{table}.{big}", text + _first_bad(ok, v[big]))
+    if "b" in v:
+        ok = v["t"] < v["b"]
+        if not np.all(ok):
+            raise RuleFailed(f"{table}.t", "t (strip thickness) must be less than b (ground-to-ground spacing)"
+                             + _first_bad(ok, v["t"]))
+    z0, _, _, _ = derive(kind, v, differential=rule.flag)
+    z = np.asarray(z0)
+    rng = PLAUSIBLE["impedance"]
+    finite = np.isfinite(z)
+    shape, i = _bad(finite)
+    if i is not None:
+        raise RuleFailed(rule.blame, f"the {kind} formulas give no finite impedance for this geometry"
+                         f"{' (variant %d)' % i if shape else ''}: the dimensions are far outside their range")
+    shape, i = _bad((z >= rng.lo) & (z <= rng.hi))
+    if i is not None:
+        raise RuleFailed(rule.blame, f"this {kind} geometry gives z0 = {_pick(z, shape, i):.4g} ohm"
+                         f"{' (variant %d)' % i if shape else ''}, not a plausible {rng.what} (expected "
+                         f"{rng.lo:g} to {rng.hi:g} ohm: {rng.reason}); check the dimensions and their units")
 
 
 def check(rules, P, only=None) -> None:

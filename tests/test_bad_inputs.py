@@ -74,6 +74,19 @@ CLI_ROWS = {
     "values-file-is-a-device": (ROBUST, ["check", "--values", "/dev/zero"], ["/dev/zero", "not a regular file"]),
     "capture-is-a-device": (ROBUST, ["judge", "--capture", "/dev/zero", "--driver", "TX", "--edge", "rise"],
                             ["/dev/zero", "not a regular file"]),
+    "geometry-and-z0": (_replace('delay = "6.7 ns/m"', 'geometry = { kind = "microstrip", w = "0.3 mm", '
+                                 'h = "0.2 mm", t = "35 um", er = 4.3 }'), ["check"],
+                        ["[lines.l] z0", "not both"]),
+    "geometry-missing-dimension": (_replace('z0 = "50 ohm"\ndelay = "6.7 ns/m"', 'geometry = { kind = "coax", '
+                                            'd = "0.5 mm", er = 2.1 }'), ["check"],
+                                   ["[lines.l.geometry] D", "missing key"]),
+    "geometry-unknown-kind": (_replace('z0 = "50 ohm"\ndelay = "6.7 ns/m"', 'geometry = { kind = "waveguide" }'),
+                              ["check"], ["[lines.l.geometry] kind", "unknown cross-section kind", "microstrip"]),
+    "geometry-pair-in-single-ended": (_replace('z0 = "50 ohm"\ndelay = "6.7 ns/m"', 'geometry = { kind = '
+                                               '"edge_coupled_microstrip", w = "0.2 mm", s = "0.2 mm", h = "0.15 mm", '
+                                               't = "35 um", er = 4.3 }'), ["check"],
+                                      ["[lines.l.geometry] kind", "coupled pair"]),
+    "explain-unknown-receiver": (ROBUST, ["explain", "--receiver", "NOPE"], ["--receiver", "NOPE", "receivers"]),
     "thousand-taps-corners": (_many_taps(1000), ["check", "--corners"], ["taps", "at most"]),
     # design aids (busbudget solve ..., busbudget sensitivity); a two-word command is written "solve stub"
     "solve-stub-without-stubs": (ROBUST, ["solve stub"], ["no tap has a stub"]),

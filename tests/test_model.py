@@ -256,7 +256,9 @@ def test_accepted_keys_labels_and_the_loader_uses_them():
     keys = accepted_keys()
     assert set(keys) == {"", "bus", "edge", "parts.driver", "parts.receiver", "parts.transceiver",
                          "parts.ref_load", "lines", "segment", "tap", "tap.stub", "termination.parallel",
-                         "termination.thevenin", "termination.rc", "termination.series", "budget"}
+                         "termination.thevenin", "termination.rc", "termination.series", "budget",
+                         *(f"lines.geometry.{kind}" for kind in budget.geometry.KINDS)}
+    assert "geometry" in keys["lines"]
     for role in ("driver", "receiver", "transceiver"):
         assert {"role", "c_pin"} <= keys[f"parts.{role}"]
     # a timing reference load belongs to a part that drives
