@@ -137,6 +137,7 @@ def main():
               "Vinl = 0.8V",
               "Vinh = 2.0V",
               "Vmeas = 1.65V",
+              *(["Rref = 50", "Vref = 1.65V", "Cref = 0pF"] if mtype == "I/O" else []),
               "| variable       typ        min        max",
               "C_comp           " + "  ".join(f"{fmt(c * 1e12)}pF" for c in cc),
               "[Voltage Range]  " + "  ".join(f"{CORNER[c][0]:.2f}" for c in COLS),
