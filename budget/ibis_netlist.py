@@ -11,10 +11,27 @@ import numpy as np
 
 from .errors import DesignError
 from .ibis import CORNERS
-from .ibis_devices import TABLES, corner_index, switching
+from .ibis_devices import TABLES, corner_index, device_current, switching
 from .kernels.nonlinear import KMAX, Devices
 
 G_STAMP = 0.02   # [S] conductance stamped at each device's die node in the transient (any positive value works)
+
+# derived tables per model (the model object is kept in the value, so its id is not reused while cached)
+_CACHE: dict = {}
+
+
+def _cached(key, model, make):
+    hit = _CACHE.get(key)
+    if hit is None:
+        if len(_CACHE) > 512:
+            _CACHE.clear()
+        hit = _CACHE[key] = (model, make())
+    return hit[1]
+
+
+def _switching(model, edge, corner, method, source):
+    return _cached(("sw", id(model), edge, corner, method), model,
+                   lambda: switching(model, edge, corner, method, source=source))
 
 
 def corners_of(design, part) -> np.ndarray:
@@ -102,7 +119,7 @@ def devices(net, old_names, specs, src_index, design, driver, edge, linear_drive
     tab_y = np.concatenate([t.y for t in tabs], axis=1) if tabs else np.zeros((3, 1))
     # switching coefficients of the driving device, per corner
     if drive_part is not None:
-        sw = [switching(drive_part.ibis.model, edge, c, drive_part.ibis.switching, source=drive_part.ibis.path)
+        sw = [_switching(drive_part.ibis.model, edge, c, drive_part.ibis.switching, drive_part.ibis.path)
               for c in CORNERS]
     else:
         sw = []
@@ -113,6 +130,29 @@ def devices(net, old_names, specs, src_index, design, driver, edge, linear_drive
         m_ = s.t.shape[0]
         k_t[c, :m_], k_u[c, :m_], k_d[c, :m_] = s.t, s.ku, s.kd
         k_n[c] = m_
+    # each device's whole current at rest, per corner: its tables summed on the union of their breakpoints
+    # (a sum of piecewise-linear functions is piecewise linear there; beyond the ends every table is
+    # extended along its end segment, so the sum is too)
+    whole = np.zeros((len(specs), 3), dtype=np.int64)
+    k_end = np.array([s.t[-1] for s in sw] if sw else [0.0, 0.0, 0.0])
+    extra_x, extra_y = [], []
+    n_tab = len(tabs)
+    for di, (tap, node, part, cidx, is_driver) in enumerate(specs):
+        m = part.ibis.model
+        for c, corner in enumerate(CORNERS):
+            ku, kd = (sw[c].ku[-1], sw[c].kd[-1]) if is_driver else (0.0, 0.0)
+            vx, vy = _cached(("whole", id(m), corner, float(ku), float(kd)), m,
+                             lambda m=m, corner=corner, ku=ku, kd=kd: _whole(m, corner, ku, kd))
+            whole[di, c] = n_tab + len(extra_x)
+            extra_x.append(vx)
+            extra_y.append(np.vstack([vy, vy, vy]))
+    if extra_x:
+        offs = [tab_off[-1]]
+        for vx in extra_x:
+            offs.append(offs[-1] + vx.shape[0])
+        tab_off = np.concatenate([tab_off, np.array(offs[1:], dtype=np.int64)])
+        tab_x = np.concatenate([tab_x[:tab_off[n_tab]]] + extra_x)
+        tab_y = np.concatenate([tab_y[:, :tab_off[n_tab]]] + extra_y, axis=1)
     # Newton groups: the devices (and a linear driver) by cluster
     cl_start = topo.cl_start
     items = list(range(len(specs))) + ([-1] if linear_driver else [])
@@ -137,7 +177,23 @@ def devices(net, old_names, specs, src_index, design, driver, edge, linear_drive
         dev_corner=np.ascontiguousarray(np.array(dev_corner, dtype=np.int64).reshape(-1, n)),
         dev_g0=np.full((len(specs), n), G_STAMP), tab_off=tab_off, tab_x=np.ascontiguousarray(tab_x),
         tab_y=np.ascontiguousarray(tab_y), k_t=k_t, k_u=k_u, k_d=k_d, k_n=k_n, lin_drv=1 if linear_driver else 0,
-        grp_start=grp_start, grp_item=np.array(grp_item, dtype=np.int64), grp_cl=grp_cl)
+        grp_start=grp_start, grp_item=np.array(grp_item, dtype=np.int64), grp_cl=grp_cl,
+        dev_whole=whole, k_end=k_end)
+
+
+def _whole(m, corner, ku, kd):
+    """(v [V], i [A]) of a model's whole current at fixed ku, kd on the union of its tables' breakpoints."""
+    pts = []
+    for w in TABLES:
+        tab = getattr(m, w)
+        if tab is None:
+            continue
+        rail = m.rail(w, corner)
+        pts.append(rail - tab.x if w in ("pullup", "power_clamp") else rail + tab.x)
+    vx = np.unique(np.concatenate(pts)) if pts else np.array([-1.0, 1.0])
+    if vx.shape[0] < 2:
+        vx = np.array([vx[0] - 1.0, vx[0] + 1.0])
+    return vx, device_current(m, vx, corner, ku, kd)
 
 
 def switching_times(design, edge) -> tuple:
@@ -154,7 +210,7 @@ def switching_times(design, edge) -> tuple:
         if box is not None:
             corners |= {CORNERS[int(corner_index(box[0]))], CORNERS[int(corner_index(box[1]))]}
         for c in corners:
-            s = switching(ip.model, edge, c, ip.switching, source=ip.path)
+            s = _switching(ip.model, edge, c, ip.switching, ip.path)
             k = s.ku if edge == "rise" else s.kd
             k0, k1 = k[0], k[-1]
             if k1 == k0:

@@ -20,6 +20,13 @@ What differs is how the devices enter:
   each update limited to NEWTON_STEP_LIMIT volts, until every update is below NEWTON_TOL
   volts, at most NEWTON_MAX_ITER iterations (else STATUS_NL_NO_CONVERGENCE); then
   v = v_lin - A^-1[:, n] r(x) on the whole cluster.  The rest of the network is untouched.
+- Fast path (exact): a device alone in its cluster and at rest (not driving, or driving after its
+  switching table ends) has a current that is one piecewise-linear function of v (its tables
+  summed on the union of their breakpoints: ``dev_whole``); the step's equation
+  x = v_lin - z (i(x) - g0 x) is then solved exactly on one segment, walking to the neighbouring
+  segment while the solution lies outside it (a monotone i(v) has one root, so the walk ends;
+  at most NEWTON_MAX_ITER moves, else STATUS_NL_NO_CONVERGENCE).  The segment of each device is
+  kept from step to step, so a step costs O(1) per device.
 - DC: Newton on the whole network with each device replaced by its tangent Norton
   equivalent (conductance max(i', DC_G_FLOOR), through ``dc_state``'s banded solve), each update
   limited to DC_STEP_LIMIT volts, until every update is below NEWTON_TOL.
@@ -71,6 +78,8 @@ class Devices(NamedTuple):
     grp_start: np.ndarray    # [n_grp + 1] items of each cluster that iterates
     grp_item: np.ndarray     # [n_items] device index, or -1 for the linear driver
     grp_cl: np.ndarray       # [n_grp] its cluster
+    dev_whole: np.ndarray    # [n_dev, 3] table id of the device's whole current i(v) at rest, per corner
+    k_end: np.ndarray        # [3] time after which the switching coefficients are constant [s]
 
 
 @kernel
@@ -266,7 +275,61 @@ def _solve_small(J, F, k, dx):
 
 
 @kernel
-def _newton_clusters(b0, B, t, topo, vals, devs, inv, v, xprev, status, Z, J, F, dx, x, r, dr, vlin):
+def _segment(devs, tid, x):
+    """Index (from 0) of the segment of table tid that holds x (the end segments beyond the ends)."""
+    o = devs.tab_off[tid]
+    n = devs.tab_off[tid + 1] - o
+    xs = devs.tab_x
+    if x <= xs[o]:
+        return 0
+    if x >= xs[o + n - 1]:
+        return n - 2
+    lo = o
+    hi = o + n - 1
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if xs[mid] <= x:
+            lo = mid
+        else:
+            hi = mid
+    return lo - o
+
+
+@kernel
+def _walk(devs, tid, corner, z, g0, vlin, seg):
+    """Exact root of x - vlin + z (i(x) - g0 x) = 0 for a piecewise-linear i (table tid); returns (x, r, segment).
+
+    Starts at segment ``seg`` and walks to the neighbour while the segment's solution lies outside it;
+    r = i(x) - g0 x.  A monotone i needs at most n moves; the segment is -1 when the walk did not settle
+    within n + 2 moves (a table with a falling part can make it oscillate).
+    """
+    o = devs.tab_off[tid]
+    n = devs.tab_off[tid + 1] - o
+    xs = devs.tab_x
+    ys = devs.tab_y
+    j = seg
+    if j < 0:
+        j = 0
+    if j > n - 2:
+        j = n - 2
+    xv = vlin
+    a = 0.0
+    sl = 0.0
+    for it in range(n + 2):
+        sl = (ys[corner, o + j + 1] - ys[corner, o + j]) / (xs[o + j + 1] - xs[o + j])
+        a = ys[corner, o + j] - sl * xs[o + j]
+        xv = (vlin - z * a) / (1.0 + z * (sl - g0))
+        if j > 0 and xv < xs[o + j]:
+            j -= 1
+        elif j < n - 2 and xv > xs[o + j + 1]:
+            j += 1
+        else:
+            return xv, a + (sl - g0) * xv, j
+    return xv, a + (sl - g0) * xv, -1
+
+
+@kernel
+def _newton_clusters(b0, B, t, topo, vals, devs, inv, v, xprev, seg, status, Z, J, F, dx, x, r, dr, vlin):
     """The device clusters' Newton solve of one step for every lane (see the module docstring)."""
     cl_start, cl_moff = topo.cl_start, topo.cl_moff
     for gi in range(devs.grp_cl.shape[0]):
@@ -276,8 +339,32 @@ def _newton_clusters(b0, B, t, topo, vals, devs, inv, v, xprev, status, Z, J, F,
         o = cl_moff[c]
         i0 = devs.grp_start[gi]
         k = devs.grp_start[gi + 1] - i0
+        if k == 1 and devs.grp_item[i0] >= 0:
+            d = devs.grp_item[i0]
+            l0 = devs.dev_node[d] - s0
+            for bb in range(B):
+                b = b0 + bb
+                cn = devs.dev_corner[d, b]
+                if devs.dev_drive[d] != 0 and t < devs.k_end[cn]:
+                    continue            # switching: the general Newton below
+                xv, rv, j = _walk(devs, devs.dev_whole[d, cn], cn, inv[o + l0 * m + l0, bb], devs.dev_g0[d, b],
+                                  v[s0 + l0, bb], seg[i0, bb])
+                if j < 0:
+                    if status[b] == STATUS_OK:
+                        status[b] = STATUS_NL_NO_CONVERGENCE
+                    j = 0
+                seg[i0, bb] = j
+                xprev[i0, bb] = xv
+                for i in range(m):
+                    v[s0 + i, bb] -= inv[o + i * m + l0, bb] * rv
+            if devs.dev_drive[d] == 0:
+                continue
         for bb in range(B):
             b = b0 + bb
+            if k == 1 and devs.grp_item[i0] >= 0:
+                d = devs.grp_item[i0]
+                if devs.dev_drive[d] == 0 or t >= devs.k_end[devs.dev_corner[d, b]]:
+                    continue            # solved by the walk above
             for j in range(k):
                 lj = _item_node(topo, devs, devs.grp_item[i0 + j]) - s0
                 vlin[j] = v[s0 + lj, bb]
@@ -386,6 +473,7 @@ def run_block_nl(b0, nb, lanes, topo, vals, devs, wave_out, dc_out, status):
     hb = np.empty((nl, B))
     n_items = devs.grp_item.shape[0]
     xprev = np.empty((max(1, n_items), B))
+    seg = np.zeros((max(1, n_items), B), dtype=np.int64)
     Z = np.empty((KMAX, KMAX))
     J = np.empty((KMAX, KMAX))
     F = np.empty(KMAX)
@@ -424,6 +512,9 @@ def run_block_nl(b0, nb, lanes, topo, vals, devs, wave_out, dc_out, status):
             status[b] = STATUS_CLUSTER_SINGULAR
         for j in range(n_items):
             xprev[j, bb] = vdc[_item_node(topo, devs, devs.grp_item[j])]
+            d = devs.grp_item[j]
+            if d >= 0:
+                seg[j, bb] = _segment(devs, devs.dev_whole[d, devs.dev_corner[d, b]], xprev[j, bb])
 
     wts = _lagrange_weights(q, fr, B, qmin, ntap, tap_off)
     if record:
@@ -492,7 +583,7 @@ def run_block_nl(b0, nb, lanes, topo, vals, devs, wave_out, dc_out, status):
                     for bb in range(B):
                         v[s0 + i, bb] += inv[o + i * m + j, bb] * rhs[s0 + j, bb]
         # 4. Newton on the clusters that hold a device (or the linear driver)
-        _newton_clusters(b0, B, t, topo, vals, devs, inv, v, xprev, status, Z, J, F, dx, x, r, dr, vlin)
+        _newton_clusters(b0, B, t, topo, vals, devs, inv, v, xprev, seg, status, Z, J, F, dx, x, r, dr, vlin)
         # 5. waves leaving both ends of every line: w = 2 v / Z0 - h (Branin 1967)
         for k in range(nl):
             o = ring_off[k]
