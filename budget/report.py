@@ -17,6 +17,8 @@ line, and what the model assumes.  "-" marks a figure that does not apply,
 """
 from __future__ import annotations
 
+from pathlib import Path
+
 import math
 from dataclasses import dataclass, field
 
@@ -42,6 +44,33 @@ ASSUMPTIONS = (
     "maximum ratings come from the parts' datasheets, not from this tool.  Defer to the applicable "
     "interface standards and to the responsible engineer.",
 )
+
+
+
+
+def assumptions_for(design) -> tuple:
+    """What the model assumes for ``design``: :data:`ASSUMPTIONS`, its first item saying which parts are linear
+    and which come from IBIS files when the design has IBIS parts."""
+    ibis = design.structure.ibis
+    if not ibis:
+        return ASSUMPTIONS
+    used = {t.part for t in design.taps}
+    linear = sorted(p for p in design.parts if p not in ibis and p in used)
+    described = []
+    skipped = set()
+    for name in sorted(p for p in ibis if p in used):
+        ip = ibis[name]
+        taps = ", ".join(t.name for t in design.taps if t.part == name)
+        described.append(f"{name} (taps {taps}): model {ip.model_name} of {Path(ip.path).name}")
+        skipped.update(ip.model.skipped)
+    text = ("Parts from IBIS files: " + "; ".join(described) + ". Their buffers follow the files' I-V tables "
+            "(pull-up, pull-down, clamps), switching coefficients from the V-T tables or [Ramp], C_comp and "
+            "package R/L/C at the chosen typ/min/max corner; a behavioural model without supply or ground "
+            "bounce" + (f"; keywords not modelled: {', '.join(sorted(skipped))}" if skipped else "") + ".")
+    if linear:
+        text += (" Linear parts (" + ", ".join(linear) + "): each output state is a voltage behind a resistance, "
+                 "blended linearly over a ramp; no clamp diodes.")
+    return (text,) + ASSUMPTIONS[1:]
 
 
 # ---------------------------------------------------------------------------
@@ -76,6 +105,7 @@ class CheckReport:
     receivers: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
     out_of_box: list = field(default_factory=list)
+    assumptions: tuple = ASSUMPTIONS    # what the model assumes (assumptions_for: says which parts are IBIS)
 
     @property
     def verdict(self) -> str:
@@ -228,7 +258,7 @@ def to_json(report: CheckReport) -> dict:
         "coverage": report.coverage,
         "out_of_box": report.out_of_box,
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
-        "assumptions": list(ASSUMPTIONS),
+        "assumptions": list(report.assumptions),
         "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
                   "absolute maximum ratings come from the datasheets; the applicable standards and the "
                   "responsible engineer decide.",
@@ -440,7 +470,7 @@ def to_text(report: CheckReport) -> str:
                  f"{w['metric']} {shown} ({scope})")
     L.append("")
     L.append("What the model assumes:")
-    for s in ASSUMPTIONS:
+    for s in report.assumptions:
         L.append(f" - {s}")
     return "\n".join(L) + "\n"
 
