@@ -55,8 +55,18 @@ def t_ref_ibis(design, driver: str, edge: str, n: int, net) -> np.ndarray:
     dt = net.dt / 4
     span = float(np.max(devs.k_t)) + 10 * float(np.max(r * (c_die + c))) + 2e-9
     steps = int(min(span / dt, 2_000_000)) + 2
-    out = np.empty(n)
-    ref_times_nl(devs, d, c_die, r, v, c, vm, edge == "rise", dt, steps, out)
+    # variants that share corner, die capacitance and reference load share the timing reference
+    # (a sweep over the bus's lines has one or three distinct rows): compute each distinct row once
+    rows = np.stack([devs.dev_corner[d].astype(float), c_die, r, v, c, vm], axis=1)
+    uniq, inverse = np.unique(rows, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    first = np.array([int(np.flatnonzero(inverse == k)[0]) for k in range(uniq.shape[0])])
+    sub = devs._replace(dev_corner=np.ascontiguousarray(devs.dev_corner[:, first]))
+    part_out = np.empty(first.shape[0])
+    ref_times_nl(sub, d, np.ascontiguousarray(c_die[first]), np.ascontiguousarray(r[first]),
+                 np.ascontiguousarray(v[first]), np.ascontiguousarray(c[first]), np.ascontiguousarray(vm[first]),
+                 edge == "rise", dt, steps, part_out)
+    out = part_out[inverse]
     if not np.all(np.isfinite(out)):
         k = int(np.flatnonzero(~np.isfinite(out))[0])
         raise SimulationError(f"{design.source}: driver {driver}, {edge} edge: the IBIS buffer into its reference "

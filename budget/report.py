@@ -259,7 +259,9 @@ def to_json(report: CheckReport) -> dict:
         "out_of_box": report.out_of_box,
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
         "assumptions": list(report.assumptions),
-        "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
+        "safety": ("Estimates from a linear model" if report.assumptions == ASSUMPTIONS else
+                   "Estimates from linear and IBIS behavioural models") +
+                  ": confirm by measurement and with the part makers' data; "
                   "absolute maximum ratings come from the datasheets; the applicable standards and the "
                   "responsible engineer decide.",
         "extensions": JSON_EXTENSIONS,
