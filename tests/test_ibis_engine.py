@@ -316,3 +316,19 @@ def test_two_waveform_extraction_recovers_the_generating_coefficients():
             inner = slice(2, -2)
             assert np.max(np.abs(sw.ku[inner] - want[inner, 0])) < 0.02
             assert np.max(np.abs(sw.kd[inner] - want[inner, 1])) < 0.02
+
+
+def test_pin_row_gives_model_and_package(tmp_path):
+    """ibis.pin: the [Pin] row names the model and its R_pin, L_pin, C_pin replace [Package] (IBIS [Pin])."""
+    (tmp_path / "tansy_tsx33.ibs").write_bytes(SHIPPED.read_bytes())
+    text = design_text("tansy_tsx33.ibs").replace('ibis = { file = "tansy_tsx33.ibs", model = "tsx33_io", '
+                                                  'switching = "auto" }',
+                                                  'ibis = { file = "tansy_tsx33.ibs", pin = "2" }')
+    (tmp_path / "p.toml").write_text(text)
+    d = budget.load(tmp_path / "p.toml")
+    p = d.parts["drv"]
+    assert p.ibis.model_name == "tsx33_io" and p.ibis.pin == "2"
+    assert p.l_pkg == pytest.approx(4.2e-9)                       # L_pin of pin 2, not L_pkg 4.0 nH
+    assert p.ibis.package["r"] == (0.31, 0.31, 0.31) and p.ibis.package["c"][0] == pytest.approx(0.62e-12)
+    w = simulate(d, "U1", "rise", t_stop=10e-9)
+    assert np.isfinite(w.v).all()
