@@ -179,8 +179,11 @@ def derived_values(part: IbisPart, corner: str) -> dict:
     if m.vinh is not None:
         out["vih"] = m.vinh
     if m.can_drive:
-        out["v_high"] = m.rail("pullup", corner) if m.pullup is not None else m.rail("pulldown", corner)
-        out["v_low"] = m.rail("pulldown", corner) if m.pulldown is not None else m.rail("pullup", corner)
+        # open drain / open source: the missing side's level is the supply rail (the bus pulls it there)
+        supply = m.voltage_range.at(corner) if m.voltage_range is not None else None
+        out["v_high"] = m.rail("pullup", corner) if m.pullup is not None else (
+            supply if supply is not None else m.rail("pulldown", corner))
+        out["v_low"] = m.rail("pulldown", corner) if m.pulldown is not None else 0.0
         for key, tab in (("r_high", m.pullup), ("r_low", m.pulldown)):
             r = np.inf
             if tab is not None:

@@ -1,7 +1,8 @@
 """Timing reference of an IBIS driver: the buffer alone into its reference load crosses its measurement level.
 
 Reference load, first given of: the part table's ``ref_load``; the model's Rref / Vref / Cref;
-the [Ramp]'s R_load to half the pull-up rail (a mid-rail timing load, common practice).  Measurement
+the [Ramp]'s R_load to half the pull-up rail (a mid-rail timing load, common practice; for an open
+drain to the supply, for an open source to 0 V).  Measurement
 level: the part's ``v_meas``, else the model's Vmeas, else half the pull-up rail.  The die carries
 C_comp (or the part's c_pin); the package is left out (the reference describes the buffer).
 Solved by :func:`budget.kernels.nonlinear.ref_times_nl` (the engine's device equations, trapezoidal
@@ -23,7 +24,9 @@ def reference(design, driver: str, edge: str):
     part = design.parts[design.tap(driver).part]
     m = part.ibis.model
     cidx = corners_of(design, part)
-    rail = np.array([m.rail("pullup", c) if m.pullup is not None else m.rail("pulldown", c) for c in CORNERS])[cidx]
+    rail = np.array([m.rail("pullup", c) if m.pullup is not None else
+                     m.voltage_range.at(c) if m.voltage_range is not None else m.rail("pulldown", c)
+                     for c in CORNERS])[cidx]
 
     def arr(x):
         return np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype=float), (n,)))
@@ -32,7 +35,9 @@ def reference(design, driver: str, edge: str):
     elif m.rref is not None:
         r, v, c = m.rref, (m.vref or 0.0), (m.cref or 0.0)
     else:
-        r, v, c = m.ramp.r_load, 0.5 * rail, 0.0
+        # push-pull: mid-rail; open drain: a pull-up to the supply; open source: a pull-down to 0 V
+        v = 0.5 * rail if (m.pullup is not None and m.pulldown is not None) else (rail if m.pullup is None else 0.0)
+        r, c = m.ramp.r_load, 0.0
     if part.v_meas is not None:
         vm = part.v_meas
     elif m.vmeas is not None:

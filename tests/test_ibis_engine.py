@@ -332,3 +332,71 @@ def test_pin_row_gives_model_and_package(tmp_path):
     assert p.ibis.package["r"] == (0.31, 0.31, 0.31) and p.ibis.package["c"][0] == pytest.approx(0.62e-12)
     w = simulate(d, "U1", "rise", t_stop=10e-9)
     assert np.isfinite(w.v).all()
+
+
+OPEN_DRAIN = """[IBIS Ver] 5.1
+[Component] OD1
+[Manufacturer] Nobody (fictional)
+[Package]
+R_pkg 0 0 0
+L_pkg 2n NA NA
+C_pkg 0 0 0
+[Model] od
+Model_type I/O_open_drain
+Vinl = 0.8
+Vinh = 2.0
+C_comp 3p NA NA
+[Voltage Range] 3.3 NA NA
+[Pulldown]
+-5 -0.5 NA NA
+0 0 NA NA
+10 1 NA NA
+[Ramp]
+dV/dt_r 1.0/0.6n NA NA
+dV/dt_f 1.0/0.6n NA NA
+[End]
+"""
+
+OD_BUS = """[bus]
+name = "open-drain bus"
+[edge]
+rise = "0.8 ns"
+fall = "0.8 ns"
+{part}
+[lines.t]
+z0 = "50 ohm"
+delay = "6.7 ns/m"
+[[segment]]
+from = "a"
+to = "b"
+line = "t"
+length = "10 cm"
+[[tap]]
+name = "A"
+node = "a"
+part = "x"
+[[tap]]
+name = "B"
+node = "b"
+part = "x"
+[[termination]]
+node = "b"
+type = "parallel"
+r = "50 ohm"
+v = "3.3 V"
+"""
+
+
+@pytest.mark.parametrize("edge", ["rise", "fall"])
+def test_open_drain_model_matches_a_linear_driver_that_lets_go(tmp_path, edge):
+    """An Open_drain model (10 ohm straight-line pull-down, no pull-up) = a linear driver whose high
+    state is 1e12 ohm (3 pA at 3.3 V: below the comparison tolerance)."""
+    (tmp_path / "od.ibs").write_text(OPEN_DRAIN)
+    (tmp_path / "i.toml").write_text(OD_BUS.format(part='[parts.x]\nibis = { file = "od.ibs", model = "od" }'))
+    (tmp_path / "l.toml").write_text(OD_BUS.format(part='[parts.x]\nrole = "transceiver"\nv_high = "3.3 V"\n'
+                                                   'v_low = "0 V"\nr_high = "1e12 ohm"\nr_low = "10 ohm"\n'
+                                                   'c_pin = "3 pF"\nl_pkg = "2 nH"\nvih = "2 V"\nvil = "0.8 V"'))
+    a = simulate(budget.load(tmp_path / "i.toml"), "A", edge, dt=10e-12, t_stop=20e-9)
+    b = simulate(budget.load(tmp_path / "l.toml"), "A", edge, dt=10e-12, t_stop=20e-9)
+    assert np.max(np.abs(a.v - b.v)) < 1e-6
+    assert a.v_end[1] == pytest.approx(3.3 if edge == "rise" else 3.3 * 10 / 60, abs=1e-6)
