@@ -147,6 +147,8 @@ def sample_values(design: Design, n: int, rng: np.random.Generator, distribution
             from scipy.stats import truncnorm
             out[p] = truncnorm.rvs(-3.0, 3.0, loc=0.5 * (lo + hi), scale=(hi - lo) / 6.0, size=n,
                                    random_state=rng)
+        if design.structure.dimensions.get(p) == "ibis_corner":
+            out[p] = np.rint(out[p])    # an IBIS corner is discrete: the nearest of min / typ / max
     return out
 
 
@@ -257,7 +259,11 @@ def search(design: Design, evaluate, paths, pop: int, seed: int, generations: in
         # vectorised: x is [k, S] (one column per candidate); [k] for a single one
         x = np.asarray(x, dtype=float)
         x = (x[:, None] if x.ndim == 1 else x).T
-        return evaluate({p: x[:, j].copy() for j, p in enumerate(paths)})
+        vals = {p: x[:, j].copy() for j, p in enumerate(paths)}
+        for p in vals:
+            if design.structure.dimensions.get(p) == "ibis_corner":
+                vals[p] = np.rint(vals[p])   # an IBIS corner is discrete: the nearest of min / typ / max
+        return evaluate(vals)
 
     result = differential_evolution(
         objective, list(zip(lo, hi)), init=init, maxiter=generations, tol=0.0, atol=1e-4,

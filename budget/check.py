@@ -47,7 +47,7 @@ from .errors import ArgumentError, DesignError
 from .limits import MAX_MONTE_CARLO
 from .kernels import metrics as mk
 from .model import Design
-from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, result_row, worst_summary
+from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, assumptions_for, result_row, worst_summary
 from .sweep import limiting_term, sweep
 
 MC_CHUNK = 512          # Monte Carlo variants per sweep call
@@ -347,7 +347,7 @@ def _assemble(design, trackers, analyses, drivers, edges, receivers, coverage) -
                        budget=budget, variants=variants, units=_units(design),
                        receivers=[r for r in receivers if any(x["receiver"] == r for x in results)],
                        coverage=coverage, out_of_box=out_of_box(design), anatomy=anatomy,
-                       warnings=geometry_notes(design))
+                       warnings=geometry_notes(design), assumptions=assumptions_for(design))
 
 
 def _units(design) -> dict:

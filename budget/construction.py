@@ -18,7 +18,7 @@ from typing import Mapping
 
 import numpy as np
 
-from . import validation
+from . import ibis_parts, validation
 from .errors import ArgumentError, DesignError
 from .limits import MAX_NAME_CHARS, MAX_NODES, MAX_TAPS, listed
 from .graph import union_roots
@@ -92,11 +92,14 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
         raise c.err(f"expected a table of parts, got {type(parts).__name__}", "parts")
     if not parts:
         raise c.err("no parts defined", "parts")
-    roles, part_keys = {}, {}
+    roles, part_keys, ibis_found = {}, {}, {}
     for name, p in parts.items():
         t = f"parts.{name}"
         c.text(name, "parts", "name")
         p = c.kind(p, Part, t)
+        if p.ibis is not None:      # a buffer from an IBIS file (budget.ibis_parts)
+            roles[name], part_keys[name], ibis_found[name] = _ibis_part(c, p, t)
+            continue
         role = c.text(p.role, t, "role", choices=ROLES)
         allowed = set(PART_COMMON)
         if role in ("driver", "transceiver"):
@@ -251,7 +254,7 @@ def construct(source, bus, edge, parts, lines, segments, taps, terminations, tol
         part_keys=frozen(part_keys), lines=tuple(lines), delay_keys=frozen(delay_keys),
         segments=tuple(seg_out), taps=tuple(tap_out), terminations=tuple(term_out),
         dimensions=frozen(c.dims), tolerances=frozen({}), budget=noise, geometry_kinds=frozen(geometry_kinds),
-        rules=rules,
+        ibis=frozen(ibis_found), rules=rules,
         rule_index=frozen(validation.index_rules(rules)),
     )
     st = replace(st, tolerances=frozen(_tolerances(c, tolerances, st)))
@@ -304,6 +307,61 @@ def _geometry(c: _Ctx, ln: LineType, t: str, signaling: str) -> str:
             raise c.err(f"give either geometry or {given[0]} (z0 with delay or er_eff), not both: the geometry "
                         "sets z0 and the delay", t, given[0])
     return kind
+def _ibis_part(c, p, t):
+    """(role, keys the part table gave, IbisPart) of a part from an IBIS file (budget.ibis_parts); fills c's values."""
+
+    ref = p.ibis
+    if isinstance(ref, ibis_parts.IbisPart):
+        raise c.err("a part view holds the resolved IBIS part; build the part from an IbisRef "
+                    "(file, component, model, corner)", t, "ibis")
+    part = ibis_parts.resolve(ref, c.source, t)
+    model = part.model
+    role = p.role if p.role is not None else ibis_parts.role_of(model)
+    role = c.text(role, t, "role", choices=ROLES)
+    if role in ("driver", "transceiver") and not model.can_drive:
+        raise c.err(f"IBIS model {part.model_name!r} (Model_type {model.model_type}) cannot drive; use role "
+                    "'receiver'", t, "role")
+    if role in ("receiver", "transceiver") and not model.can_receive:
+        raise c.err(f"IBIS model {part.model_name!r} (Model_type {model.model_type}) has no input; use role "
+                    "'driver'", t, "role")
+    for k in DRIVE_KEYS:
+        if getattr(p, k) is not None:
+            raise c.err("comes from the IBIS model (its I-V tables); remove it, or use a linear part", t, k)
+    corner = ibis_parts.corner_value(ref.corner, c.source, t, "ibis.corner")
+    c.params[f"{t}.ibis.corner"] = corner
+    c.dims[f"{t}.ibis.corner"] = "ibis_corner"
+    derived = ibis_parts.derived_values(part, {-1.0: "min", 0.0: "typ", 1.0: "max"}[corner])
+    receives = role in ("receiver", "transceiver")
+    present = set()
+    dims = {**RECEIVE_KEYS, **PART_COMMON}
+    for k in ibis_parts.OVERRIDABLE:
+        if k in RECEIVE_KEYS and not receives:
+            if getattr(p, k) is not None:
+                raise c.err(f"a part with role {role!r} has no {k}", t, k)
+            continue
+        value = getattr(p, k)
+        if k == "r_in" and isinstance(value, float) and value == float("inf"):
+            value = None
+        if value is not None:
+            c.qty(value, dims[k], t, k, f"{t}.{k}")
+            present.add(k)
+        elif k in derived:
+            c.params[f"{t}.{k}"] = derived[k]
+        elif k in RECEIVE_KEYS:
+            raise c.err(f"IBIS model {part.model_name!r} gives no {'Vinh' if k == 'vih' else 'Vinl'}; give {k} in "
+                        "the part table", t, k)
+    if role in ("driver", "transceiver"):
+        for k in DRIVE_KEYS:
+            c.params[f"{t}.{k}"] = derived[k]
+    if p.ref_load is not None:
+        if role == "receiver":
+            raise c.err("a receiver-only part has no timing reference load", t, "ref_load")
+        rl = c.kind(p.ref_load, RefLoad, f"{t}.ref_load")
+        for k, dim in REF_LOAD_KEYS.items():
+            if c.qty(getattr(rl, k), dim, f"{t}.ref_load", k, f"{t}.ref_load.{k}", required=(k == "r")) is not None:
+                present.add(f"ref_load.{k}")
+    present.add("ibis")
+    return role, frozenset(present), part
 
 
 def _same_delay(delay, er) -> bool:

@@ -16,6 +16,8 @@ from .errors import DesignError
 from .files import read_regular_file
 from .geometry import KINDS as GEOMETRY_KINDS
 from .limits import MAX_FILE_BYTES   # re-exported here, where it always was
+from .ibis_parts import IBIS_KEYS, IbisRef
+from .ibis_parts import OVERRIDABLE as IBIS_OVERRIDABLE
 from .model import (
     BUDGET_NAMED, DRIVE_KEYS, LINE_KEYS, PART_COMMON, RECEIVE_KEYS, REF_LOAD_KEYS, TERM_KEYS, Budget, Bus,
     Design, Edge, LineType, Part, RefLoad, Segment, Stub, Tap, Termination,
@@ -30,6 +32,8 @@ _SCHEMA = {
     "parts.receiver": (_PART_BASE - {"ref_load"}) | set(RECEIVE_KEYS),   # a receiver has no timing reference
     "parts.transceiver": _PART_BASE | set(DRIVE_KEYS) | set(RECEIVE_KEYS),
     "parts.ref_load": set(REF_LOAD_KEYS),
+    "parts.ibis_part": {"role", "ibis", "ref_load", *IBIS_OVERRIDABLE},   # a part from an IBIS file
+    "parts.ibis": set(IBIS_KEYS),
     "lines": set(LINE_KEYS) | {"geometry"},
     **{f"lines.geometry.{kind}": {"kind", *keys} for kind, keys in GEOMETRY_KINDS.items()},
     "segment": {"from", "to", "line", "length"},
@@ -46,7 +50,8 @@ def accepted_keys() -> dict[str, set[str]]:
     """Table label -> the keys the loader accepts in that table (a fresh copy).
 
     Labels: "" (top-level tables), "bus", "edge", "parts.driver",
-    "parts.receiver", "parts.transceiver", "parts.ref_load", "lines",
+    "parts.receiver", "parts.transceiver", "parts.ref_load", "parts.ibis_part" (a part
+    with ``ibis``), "parts.ibis" (the ``ibis`` table itself), "lines",
     "lines.geometry.KIND" (one per cross-section kind: microstrip, stripline, coax, two_wire,
     edge_coupled_microstrip, edge_coupled_stripline), "segment", "tap", "tap.stub", "termination.parallel",
     "termination.thevenin", "termination.rc", "termination.series", "budget".
@@ -125,8 +130,21 @@ def _arguments(doc: dict, source: str) -> dict:
     for name, p in r.table(doc["parts"], "parts").items():
         t = f"parts.{name}"
         p = dict(r.table(p, t))
+        if "ibis" in p and not _linear_intent(p):   # a buffer from an IBIS file: budget.ibis_parts
+            r.known(p, "parts.ibis_part", t)
+            ib = r.table(p["ibis"], f"{t}.ibis")
+            r.known(ib, "parts.ibis", f"{t}.ibis")
+            if "file" not in ib:
+                raise r.err("missing key", f"{t}.ibis", "file")
+            p["ibis"] = IbisRef(**ib)
+            if "ref_load" in p:
+                rl = r.table(p["ref_load"], f"{t}.ref_load")
+                r.known(rl, "parts.ref_load", f"{t}.ref_load")
+                p["ref_load"] = RefLoad(**rl) if "r" in rl else _missing_ref_r(r, t)
+            parts[name] = Part(role=p.pop("role", None), **p)
+            continue
         if "role" not in p:
-            raise r.err("missing key", t, "role")
+            raise r.err("missing key (or ibis = { ... } for a part from an IBIS file)", t, "role")
         role = p.get("role")
         label = f"parts.{role}" if role in ("driver", "receiver", "transceiver") else "parts.transceiver"
         for k in p:
@@ -207,6 +225,15 @@ def _arguments(doc: dict, source: str) -> dict:
     return dict(bus=Bus(**bus), edge=Edge(rise=edge.get("rise"), fall=edge.get("fall")), parts=parts, lines=lines,
                 segments=segments, taps=taps, terminations=terminations, tolerances=tolerances,
                 noise_budget=budget)
+
+
+def _linear_intent(p: dict) -> bool:
+    """A part table that has the linear keys of its role is a linear part (a stray ``ibis`` is then refused)."""
+    if "role" not in p:
+        return False
+    if any(k in p for k in DRIVE_KEYS):
+        return True
+    return p.get("role") == "receiver" and all(k in p for k in ("c_pin", *RECEIVE_KEYS))
 
 
 def _missing_ref_r(r: _Reader, t: str):

@@ -75,6 +75,9 @@ def choose_dt(design, edge: str) -> float:
     if design.bus.dt is not None:
         return vmin(design.bus.dt)
     t_ramp = vmin(ramp_time(design, edge))
+    if design.structure.ibis:   # IBIS drivers switch at their own pace (budget.ibis_netlist)
+        from .ibis_netlist import switching_times
+        t_ramp = min(t_ramp, switching_times(design, edge)[0])
     dt = t_ramp / STEPS_PER_RAMP
     for tap in design.taps:
         part = design.parts[tap.part]
@@ -112,7 +115,11 @@ def default_t_stop(design, edge: str) -> float:
     for term in design.terminations:
         if term.type == "rc":
             tau = max(tau, vmax(np.asarray(term.r) * term.c))
-    return max(2 * vmax(ramp_time(design, edge)) + 12 * total_td + 10 * tau, 10e-9)
+    t_ramp = vmax(ramp_time(design, edge))
+    if design.structure.ibis:   # IBIS drivers: their coefficient tables' span (budget.ibis_netlist)
+        from .ibis_netlist import switching_times
+        t_ramp = max(t_ramp, switching_times(design, edge)[1])
+    return max(2 * t_ramp + 12 * total_td + 10 * tau, 10e-9)
 
 
 # -- one line --------------------------------------------------------------------

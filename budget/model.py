@@ -149,7 +149,10 @@ class Part(_ByValue):
     c_pin [F]; l_pkg [H] (absent: 0, none); r_in [ohm] (absent: inf, none);
     vih, vil [V] receiver thresholds; v_max, v_min [V] absolute limits (None =
     not given); ref_load: timing reference load (None = ideal ramp); v_meas [V]
-    timing measurement level (None = 50 % of the swing).  ``name`` is filled in
+    timing measurement level (None = 50 % of the swing).  ibis: an
+    :class:`budget.ibis_parts.IbisRef` (a buffer from an IBIS file instead of
+    the linear driver keys; in a design's view the resolved
+    :class:`budget.ibis_parts.IbisPart`).  ``name`` is filled in
     from the key of ``Design(parts=...)``.
     """
     role: str
@@ -166,6 +169,7 @@ class Part(_ByValue):
     v_min: Any = None
     ref_load: RefLoad | None = None
     v_meas: Any = None
+    ibis: Any = None
     name: str | None = None
 
     @property
@@ -293,6 +297,7 @@ class Structure(_ByValue):
     tolerances: Mapping[str, tuple[float, float]]
     budget: Budget
     geometry_kinds: Mapping[str, str] = field(default_factory=dict)   # geometry line -> its kind
+    ibis: Mapping[str, Any] = field(default_factory=dict)   # part name -> IbisPart (parts from IBIS files)
     rules: tuple = field(default=(), compare=False, repr=False)
     rule_index: Mapping[str, tuple] = field(default_factory=dict, compare=False, repr=False)
 
@@ -360,7 +365,7 @@ class Design:
                 r_high=get(f"{t}.r_high"), r_low=get(f"{t}.r_low"), c_pin=P[f"{t}.c_pin"],
                 l_pkg=get(f"{t}.l_pkg", 0.0), r_in=get(f"{t}.r_in", math.inf), vih=get(f"{t}.vih"),
                 vil=get(f"{t}.vil"), v_max=get(f"{t}.v_max"), v_min=get(f"{t}.v_min"), ref_load=ref,
-                v_meas=get(f"{t}.v_meas"))
+                v_meas=get(f"{t}.v_meas"), ibis=st.ibis.get(name))
         put(self, "parts", frozen(parts))
         lines = {}
         for name in st.lines:

@@ -68,6 +68,7 @@ class Netlist:
     driver: str
     edge: str
     notes: list = field(default_factory=list)
+    devices: object = None   # budget.kernels.nonlinear.Devices when the design has IBIS parts, else None
 
     @property
     def dt(self) -> float:
@@ -245,6 +246,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     series = {t.tap: t for t in design.terminations if t.type == "series"}
     out_nodes = []
     drv_node = -1
+    ibis_specs = []     # IBIS parts: (tap, die node, part, corners, driving) -- budget.ibis_netlist
     for tap, etap in zip(design.taps, env.taps):
         part = design.parts[tap.part]
         at = b.node(tap.node)
@@ -256,6 +258,13 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             pad = b.node(f"{tap.name}:pad")
             b.r(at, pad, series[tap.name].r)
             at = pad
+        if part.ibis is not None:
+            from . import ibis_netlist
+            at = ibis_netlist.chain(b, design, tap, part, at, ibis_specs, tap.name == driver)
+            out_nodes.append(at)
+            if tap.name == driver:
+                drv_node = at
+            continue
         l_pkg = np.asarray(part.l_pkg, dtype=float)
         if _vmax(l_pkg) > 0:
             if _vmin(l_pkg) <= 0:
@@ -288,8 +297,21 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     hi = (dpart.v_high, dpart.r_high)
     (v0, r0), (v1, r1) = (lo, hi) if edge == RISE else (hi, lo)
 
-    return _assemble(b, design, drv_node, out_nodes, v0, r0, v1, r1, ramp_time(design, edge), dt,
-                     n_steps, driver, edge, notes)
+    if not ibis_specs:
+        return _assemble(b, design, drv_node, out_nodes, v0, r0, v1, r1, ramp_time(design, edge), dt,
+                         n_steps, driver, edge, notes)
+    # a design with IBIS parts: placeholder sources for the devices, the non-linear kernel's Devices
+    from . import ibis_netlist
+    src_index = ibis_netlist.add_placeholders(b, ibis_specs)
+    linear_driver = dpart.ibis is None
+    if not linear_driver:       # the buffer is the driver: no linear source (1/inf = 0 in every stamp)
+        v0 = v1 = 0.0
+        r0 = r1 = math.inf
+    old_names = list(b.names)
+    net = _assemble(b, design, drv_node, out_nodes, v0, r0, v1, r1, ramp_time(design, edge), dt, n_steps, driver,
+                    edge, notes)
+    net.devices = ibis_netlist.devices(net, old_names, ibis_specs, src_index, design, driver, edge, linear_driver)
+    return net
 
 
 def _assemble(b: _Builder, design, drv_node, out_nodes, v0, r0, v1, r1, t_ramp, dt, n_steps,

@@ -17,6 +17,8 @@ line, and what the model assumes.  "-" marks a figure that does not apply,
 """
 from __future__ import annotations
 
+from pathlib import Path
+
 import math
 from dataclasses import dataclass, field
 
@@ -42,6 +44,33 @@ ASSUMPTIONS = (
     "maximum ratings come from the parts' datasheets, not from this tool.  Defer to the applicable "
     "interface standards and to the responsible engineer.",
 )
+
+
+
+
+def assumptions_for(design) -> tuple:
+    """What the model assumes for ``design``: :data:`ASSUMPTIONS`, its first item saying which parts are linear
+    and which come from IBIS files when the design has IBIS parts."""
+    ibis = design.structure.ibis
+    if not ibis:
+        return ASSUMPTIONS
+    used = {t.part for t in design.taps}
+    linear = sorted(p for p in design.parts if p not in ibis and p in used)
+    described = []
+    skipped = set()
+    for name in sorted(p for p in ibis if p in used):
+        ip = ibis[name]
+        taps = ", ".join(t.name for t in design.taps if t.part == name)
+        described.append(f"{name} (taps {taps}): model {ip.model_name} of {Path(ip.path).name}")
+        skipped.update(ip.model.skipped)
+    text = ("Parts from IBIS files: " + "; ".join(described) + ". Their buffers follow the files' I-V tables "
+            "(pull-up, pull-down, clamps), switching coefficients from the V-T tables or [Ramp], C_comp and "
+            "package R/L/C at the chosen typ/min/max corner; a behavioural model without supply or ground "
+            "bounce" + (f"; keywords not modelled: {', '.join(sorted(skipped))}" if skipped else "") + ".")
+    if linear:
+        text += (" Linear parts (" + ", ".join(linear) + "): each output state is a voltage behind a resistance, "
+                 "blended linearly over a ramp; no clamp diodes.")
+    return (text,) + ASSUMPTIONS[1:]
 
 
 # ---------------------------------------------------------------------------
@@ -78,6 +107,7 @@ class CheckReport:
     out_of_box: list = field(default_factory=list)
     anatomy: dict | None = None
     warnings: list = field(default_factory=list)
+    assumptions: tuple = ASSUMPTIONS    # what the model assumes (assumptions_for: says which parts are IBIS)
 
     @property
     def verdict(self) -> str:
@@ -236,8 +266,10 @@ def to_json(report: CheckReport) -> dict:
         **({"anatomy": report.anatomy} if report.anatomy is not None else {}),
         "warnings": list(report.warnings),
         "units": {"voltage": "V", "time": "s", "percent_of_swing": "%"},
-        "assumptions": list(ASSUMPTIONS),
-        "safety": "Estimates from a linear model: confirm by measurement and with the part makers' data; "
+        "assumptions": list(report.assumptions),
+        "safety": ("Estimates from a linear model" if report.assumptions == ASSUMPTIONS else
+                   "Estimates from linear and IBIS behavioural models") +
+                  ": confirm by measurement and with the part makers' data; "
                   "absolute maximum ratings come from the datasheets; the applicable standards and the "
                   "responsible engineer decide.",
         "extensions": JSON_EXTENSIONS,
@@ -458,7 +490,7 @@ def to_text(report: CheckReport) -> str:
                  f"{w['metric']} {shown} ({scope})")
     L.append("")
     L.append("What the model assumes:")
-    for s in ASSUMPTIONS:
+    for s in report.assumptions:
         L.append(f" - {s}")
     return "\n".join(L) + "\n"
 

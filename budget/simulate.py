@@ -67,6 +67,13 @@ def run_netlist(net: Netlist):
     waves = np.empty((net.n_steps, n_out, n))
     dc = np.empty((2, net.topology.n_nodes, n))
     status = np.empty(n, dtype=np.int64)
+    if net.devices is not None:     # IBIS parts: the non-linear kernel (budget.kernels.nonlinear)
+        from .kernels import nonlinear as nk
+        for b0 in range(0, n, tk.LANES):
+            bsz = min(tk.LANES, n - b0)
+            nk.run_block_nl(b0, bsz, (0,) if bsz == 1 else (), net.topology, net.values, net.devices,
+                            waves[:, :, b0:b0 + bsz], dc, status)
+        return waves, dc, status
     for b0 in range(0, n, tk.LANES):
         bsz = min(tk.LANES, n - b0)
         tk.run_block(b0, bsz, (0,) if bsz == 1 else (), net.topology, net.values,
@@ -88,6 +95,11 @@ def check_status(status, net: Netlist, design: Design):
                               "resistive path to ground (add r_in, a termination, or a driver)")
     if code == tk.STATUS_CLUSTER_SINGULAR:
         raise SimulationError(f"{where}: a lumped part of the network gave a singular nodal matrix")
+    if code == 4:   # budget.kernels.nonlinear.STATUS_NL_NO_CONVERGENCE
+        from .kernels import nonlinear as nk
+        raise SimulationError(f"{where}: Newton's method on the IBIS buffers did not converge (tolerance "
+                              f"{nk.NEWTON_TOL:g} V, at most {nk.NEWTON_MAX_ITER} iterations a step, "
+                              f"{nk.DC_MAX_ITER} at the DC point); try a smaller dt")
     raise SimulationError(f"{where}: the transient produced non-finite voltages (status {code})")
 
 

@@ -176,6 +176,12 @@ def variants(design: Design, *, within: Mapping[str, tuple] | None = None) -> st
         # values shrink towards the design's own (for a Variant: its values, and the result
         # keeps its changes and its nominal)
         parts = {p: _value(lo, hi, float(design.params[p])) for p, (lo, hi) in box.items()}
+        for p, (lo, hi) in box.items():
+            if design.structure.dimensions.get(p) == "ibis_corner":
+                # an IBIS corner is discrete: min / typ / max inside the interval, shrinking to the nominal
+                x0 = float(design.params[p])
+                picks = sorted((c for c in (-1.0, 0.0, 1.0) if lo <= c <= hi), key=lambda c: (abs(c - x0), c))
+                parts[p] = st.sampled_from(picks or [x0])
 
         def make(vals):
             try:

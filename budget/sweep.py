@@ -192,9 +192,12 @@ def limiting_term(design: Design, receiver: str, m, values: Mapping[str, float] 
     return int(mk.headroom_terms(np.asarray(m, dtype=float), lim[0], lim[1], float(design.budget.min_margin))[1])
 
 
-def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:
-    """Driver timing reference [s] per variant (ideal ramp or reference load)."""
+def t_ref_of(design: Design, driver: str, edge: str, n: int, net=None) -> np.ndarray:
+    """Driver timing reference [s] per variant (ideal ramp or reference load; IBIS drivers: budget.ibis_timing)."""
     part = design.parts[design.tap(driver).part]
+    if part.ibis is not None:
+        from .ibis_timing import t_ref_ibis
+        return t_ref_ibis(design, driver, edge, n, net)
 
     def arr(x, default=0.0):
         return np.ascontiguousarray(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
@@ -220,12 +223,19 @@ def evaluate(design: Design, driver: str, edge: str, *, dt: float, t_stop: float
     receivers = tuple(r for r in design.receivers if r != driver)
     rcv_out = np.array([design.tap_names.index(r) for r in receivers], dtype=np.int64)
     vil, vih, vmax, vmin, av, af = _receiver_arrays(design, receivers, n)
-    t_ref = t_ref_of(design, driver, edge, n)
+    t_ref = t_ref_of(design, driver, edge, n, net)
     metrics = np.empty((n, len(receivers), mk.N_METRICS))
     bits = np.empty((n, len(receivers)), dtype=np.int64)
     head = np.empty((n, len(receivers)))
     levels = np.empty((n, len(receivers), 2))
     status = np.empty(n, dtype=np.int64)
+    if net.devices is not None:     # IBIS parts: the non-linear kernel (budget.kernels.nonlinear)
+        from .kernels.nonlinear import evaluate_chunk_nl
+        evaluate_chunk_nl(net.topology, net.values, net.devices, edge == RISE, rcv_out, vil, vih, vmax, vmin, av,
+                          af, float(design.budget.settle_band), float(design.budget.min_margin), t_ref,
+                          metrics, bits, head, levels, status)
+        check_status(status, net, design)
+        return receivers, metrics, bits, head, levels
     evaluate_chunk(net.topology, net.values, edge == RISE, rcv_out, vil, vih, vmax, vmin, av, af,
                    float(design.budget.settle_band), float(design.budget.min_margin), t_ref,
                    metrics, bits, head, levels, status)

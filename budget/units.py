@@ -28,6 +28,7 @@ import math
 import re
 
 from .errors import DesignError
+from .ibis_corner import corner_value
 
 # dimension name -> (pint dimensionality string, SI unit shown in messages)
 DIMENSIONS = {
@@ -40,6 +41,7 @@ DIMENSIONS = {
     "delay_per_length": ("[time] / [length]", "s/m"),
     "resistance_per_length": ("[mass] * [length] / [time] ** 3 / [current] ** 2", "ohm/m"),
     "dimensionless": ("dimensionless", "1"),
+    "ibis_corner": ("dimensionless", ""),   # -1 min, 0 typ, +1 max (budget.ibis_parts; parsed by corner_value)
 }
 
 MAX_TEXT = 64          # characters; "1.23456789e-12 ohm/m" needs 20
@@ -166,6 +168,8 @@ def parse_quantity(value, dimension: str, *, source="<design>", table=None, key=
         Malformed text, an unknown or ambiguous unit, the wrong dimension, or a
         non-finite number.
     """
+    if dimension == "ibis_corner":   # an IBIS part's corner: "typ" / "min" / "max" (budget.ibis_parts)
+        return corner_value(value, source, table, key)
     unit = DIMENSIONS[dimension][1]
     if isinstance(value, bool):
         raise DesignError(f"expected a quantity in {unit}, got a boolean", source=source, table=table, key=key)

@@ -79,6 +79,8 @@ PLAUSIBLE = {
     "dimension": Range(1e-7, 1.0, "m", 0.2e-3, "cross-section dimension",
                        "trace widths, gaps, dielectric heights and wire or shield diameters are "
                        "micrometres to centimetres"),
+    "ibis_corner": Range(-1.0, 1.0, "", 0.0, "IBIS corner",
+                         "-1 (min: slow-weak), 0 (typ) or +1 (max: fast-strong)"),
 }
 
 # the kind of each design-file key (the last part of a parameter path)
@@ -89,7 +91,7 @@ KEY_KINDS = {
     "z0": "impedance", "delay": "delay_per_length", "er_eff": "er_eff", "r_dc": "resistance_per_length",
     "length": "length", "rise": "edge_time", "fall": "edge_time", "t_stop": "window", "dt": "step",
     "r": "resistance", "v": "voltage", "c": "capacitance", "r_up": "resistance", "r_down": "resistance",
-    "v_up": "voltage",
+    "v_up": "voltage", "corner": "ibis_corner",
     # cross-section geometry ([lines.NAME] geometry = {...}; budget.geometry.KINDS)
     "w": "dimension", "h": "dimension", "b": "dimension", "s": "dimension", "d": "dimension",
     "D": "dimension", "t": "thickness", "er": "permittivity",
@@ -183,6 +185,9 @@ def rules_for(parts, lines, segments, taps, terminations, dims, *, geometry=None
             p = f"termination.{i}.{k}"
             if p in dims:
                 out.append(Rule("positive", (p,), p, "must be positive"))
+    for p in dims:
+        if dims[p] == "ibis_corner":
+            out.append(Rule("corner", (p,), p, "an IBIS corner is -1 (min), 0 (typ) or +1 (max)"))
     # plausibility of every value (after the sign rules, so a negative value gets the sign message)
     for p in dims:
         out.append(Rule("plausible", (p,), p))
@@ -323,6 +328,12 @@ def evaluate(rule: Rule, P) -> None:
     if k in ("positive", "nonneg", "at_least_one"):
         x = P[rule.paths[0]]
         ok = x > 0 if k == "positive" else (x >= 0 if k == "nonneg" else x >= 1)
+        if not np.all(ok):
+            raise RuleFailed(rule.blame, rule.text + _first_bad(ok, x))
+        return
+    if k == "corner":
+        x = np.asarray(P[rule.paths[0]])
+        ok = (x == -1.0) | (x == 0.0) | (x == 1.0)
         if not np.all(ok):
             raise RuleFailed(rule.blame, rule.text + _first_bad(ok, x))
         return

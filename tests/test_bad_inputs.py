@@ -23,6 +23,7 @@ from budget.cli import main
 from budget.errors import ArgumentError, BusBudgetError, DesignError
 
 DESIGNS = Path(__file__).parent / "designs"
+SHIPPED_IBIS = Path(budget.__file__).parent / "examples" / "ibis" / "tansy_tsx33.ibs"
 ROBUST = (DESIGNS / "robust.toml").read_text()
 SECONDS = 10.0          # per row: generous for a loaded 2-core machine; a hang or a minutes-long run fails it
 
@@ -97,6 +98,14 @@ CLI_ROWS = {
     "solve-drops-both-questions": (ROBUST, ["solve drops", "--spacing", "1 cm", "--count", "3"], ["--count"]),
     "solve-termination-unknown-series": (ROBUST, ["solve termination", "--series", "E7"], ["--series"]),
     "sensitivity-unknown-path": (ROBUST, ["sensitivity", "--path", "lines.nope.z0"], ["--path", "lines.nope.z0"]),
+    # parts from IBIS files (issue 11): the file, its lines and the corner are named
+    "ibis-file-is-dev-zero": (_replace("[parts.dst]", '[parts.ib]\nibis = { file = "/dev/zero", model = "m" }\n\n'
+                                       "[parts.dst]"), ["check"], ["[parts.ib] ibis.file", "not a regular file"]),
+    "ibis-file-malformed": (_replace("[parts.dst]", f'[parts.ib]\nibis = {{ file = "{SHIPPED_IBIS}", model = "x" }}\n\n'
+                                     "[parts.dst]"), ["check"], ["[parts.ib] ibis.model", "no [Model] 'x'"]),
+    "ibis-corner-between": (_replace("[parts.dst]", f'[parts.ib]\nibis = {{ file = "{SHIPPED_IBIS}", '
+                                     'model = "tsx33_io" }\n\n[parts.dst]'),
+                            ["check", "--set", "parts.ib.ibis.corner=0.5"], ["parts.ib.ibis.corner", "IBIS corner"]),
 }
 
 

@@ -43,3 +43,13 @@ def test_benchmark_runs_on_a_tiny_case(bench):
     json.dumps(res)  # the --json output is one serialisable object
     table = bench.table(res)
     assert "sims/s, one core" in table and "cold start" in table
+
+
+def test_ibis_speed_benchmark_runs(capsys):
+    """benchmarks/ibis_speed.py measures both engines on the same 8-drop bus (timing not judged here)."""
+    spec = importlib.util.spec_from_file_location("ibis_speed", ROOT / "benchmarks" / "ibis_speed.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    mod.main(["--repeat", "1", "--variants", "2"])
+    out = capsys.readouterr().out
+    assert "8-drop reference bus" in out and out.count("x\n") == 2

@@ -107,6 +107,11 @@ def entry(doc: dict, label: str) -> dict:
         return doc[label]
     if label in PART_OF_ROLE:
         return doc["parts"][PART_OF_ROLE[label]]
+    if label == "parts.ibis_part":   # a part from the shipped IBIS file (paths relative to the repository root)
+        return doc["parts"].setdefault("ibis_x", {"ibis": {"file": "budget/examples/ibis/tansy_tsx33.ibs",
+                                                           "model": "tsx33_io"}})
+    if label == "parts.ibis":
+        return entry(doc, "parts.ibis_part")["ibis"]
     if label == "parts.ref_load":
         return doc["parts"]["ctrl"].setdefault("ref_load", required_entry("parts.ref_load"))
     if label == "lines":
@@ -141,6 +146,12 @@ def required_entry(label: str) -> dict:
 def alternatives(row: dict) -> list[str]:
     """Keys named by a required cell 'one of `a`/`b`'."""
     return re.findall(r"`([^`]+)`", row["required"]) if row["required"].startswith("one of") else []
+
+
+@pytest.fixture(autouse=True)
+def _at_repository_root(monkeypatch):
+    """The documented IBIS example path is relative to the repository root."""
+    monkeypatch.chdir(ROOT)
 
 
 KEYED = [(label, key) for label in sorted(DOCUMENTED) if label for key in sorted(DOCUMENTED[label])]

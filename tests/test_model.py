@@ -255,9 +255,9 @@ def test_batch_designs_compare_without_raising(bus):
 def test_accepted_keys_labels_and_the_loader_uses_them():
     keys = accepted_keys()
     assert set(keys) == {"", "bus", "edge", "parts.driver", "parts.receiver", "parts.transceiver",
-                         "parts.ref_load", "lines", "segment", "tap", "tap.stub", "termination.parallel",
-                         "termination.thevenin", "termination.rc", "termination.series", "budget",
-                         *(f"lines.geometry.{kind}" for kind in budget.geometry.KINDS)}
+                         "parts.ref_load", "parts.ibis_part", "parts.ibis", "lines", "segment", "tap", "tap.stub",
+                         "termination.parallel", "termination.thevenin", "termination.rc", "termination.series",
+                         "budget", *(f"lines.geometry.{kind}" for kind in budget.geometry.KINDS)}
     assert "geometry" in keys["lines"]
     for role in ("driver", "receiver", "transceiver"):
         assert {"role", "c_pin"} <= keys[f"parts.{role}"]
