@@ -2,9 +2,8 @@
 
 A sweep block ends before its window does once every lane's every metric
 stream is final (:func:`budget.kernels.stream.settled_final`): each receiver
-pin has stayed within its stop band (``STOP_FRACTION`` of its swing around its
-final DC level, at most the settle band) for the guard time, and none of its
-metrics could change while it stays there.  The safety argument and its
+pin is valid, inside its settle band, and no sample of the last guard time
+changed any of its metric states.  The safety argument and its
 limits are in docs/metrics.md, "When a sweep ends a window early".
 ``simulate`` never ends early: it returns whole waveforms.
 """
@@ -13,10 +12,9 @@ from __future__ import annotations
 import numpy as np
 
 from .edges import ramp_time
-from .kernels.stream import STOP_FRACTION
 from .line_model import vmax
 
-__all__ = ["STOP_FRACTION", "settle_guard", "GUARD_PASSES", "GUARD_RC_TAUS"]
+__all__ = ["settle_guard", "GUARD_PASSES", "GUARD_RC_TAUS"]
 
 # The guard: this many one-way passes over every line of the bus in series (an
 # upper bound on the longest path between any two nodes), so a wave still
@@ -28,7 +26,7 @@ GUARD_MIN = 1e-9  # [s]
 
 
 def settle_guard(design, edge: str) -> float:
-    """Guard time [s]: how long every pin must stay in its stop band before a block may end.
+    """Guard time [s]: how long no sample may change a metric state before a block may end.
 
     design: the tolerance envelope (or any design; array values: their largest).
     2 x the sum of every line's delay (segments and stubs) + 2 ramps + 3 x the

@@ -17,14 +17,12 @@ previous sample kept as x = sgn v), so the metrics are equal to the last bit
 Layout: parameters ``mp[P_*, rcv, lane]`` (set once per block by
 :func:`stream_start`) and state ``ms[S_*, rcv, lane]``; flags are 0.0 / 1.0.
 
-Early end of a block (``settled_final``): a (receiver, lane) is *final*
-when the rest of the window cannot change any of its metrics provided the
-pin stays within the stop band (``P_STOP``) of its final level: it has
-entered the threshold region and reached the valid threshold (or can never
-do so), has stayed inside the stop band for the guard time, and its running
-extremes and post-peak minimum already lie outside the stop band.  The
-argument that a settled bus stays settled is in docs/metrics.md ("When a
-sweep ends a window early").
+Early end of a block (``settled_final``): a (receiver, lane) is taken as
+*final* when it is valid, inside its settle band, and no sample of the last
+guard time changed any of its metric states (extremes, crossings, the
+ringback window, the settle entry).  The
+argument that a settled bus stays there is in docs/metrics.md ("When a sweep
+ends a window early").
 """
 from __future__ import annotations
 
@@ -35,17 +33,13 @@ from .metrics import (FLIGHT_MAX, FLIGHT_MIN, MARGIN, MONOTONIC, MONOTONIC_FRACT
                       SETTLE_TIME, T_SWITCH, T_VALID, UNDERSHOOT, V_PEAK, V_TROUGH, _cross)
 
 # parameters per (receiver, lane)
-P_SGN, P_A, P_B, P_XEND, P_FALL, P_LO, P_HI, P_VLO, P_VHI, P_TREF, P_ALLOC, P_STOP, P_MIRROR, P_MIRC = range(14)
-N_PARAMS = 14
+P_SGN, P_A, P_B, P_XEND, P_FALL, P_LO, P_HI, P_VLO, P_VHI, P_TREF, P_ALLOC, P_MIRROR, P_MIRC = range(13)
+N_PARAMS = 13
 # state per (receiver, lane)
 S_XPREV, S_VPEAK, S_VTROUGH, S_XMAX, S_TSWITCH, S_VALID, S_VALID_SINCE, S_SETTLE_SINCE, S_MIN_AFTER, \
-    S_PEAK, S_FALLEN, S_RUN_MAX, S_MONO, S_TRANSIT, S_STOP_SINCE = range(15)
+    S_PEAK, S_FALLEN, S_RUN_MAX, S_MONO, S_TRANSIT, S_CHANGED = range(15)
 N_STATE = 15
 
-# The stop band: a pin counts as settled for ending a window early while it is
-# within this fraction of its swing of its final DC level (and within the
-# metric contract's settle band, if that is narrower).
-STOP_FRACTION = 0.002
 
 
 @kernel(inline="always")
@@ -81,7 +75,6 @@ def stream_params(mp, r, bb, rising, v_lo, v_hi, vil, vih, t_ref, settle_band, a
     mp[P_VHI, r, bb] = v_hi
     mp[P_TREF, r, bb] = t_ref
     mp[P_ALLOC, r, bb] = alloc
-    mp[P_STOP, r, bb] = min(settle_band, STOP_FRACTION * swing)
     mp[P_MIRROR, r, bb] = 1.0 if mirror else 0.0
     mp[P_MIRC, r, bb] = mirror_sum
 
@@ -111,39 +104,47 @@ def stream_start(mp, ms, r, bb, v0):
     ms[S_VALID_SINCE, r, bb] = math.nan if x < b_th else 0.0
     in_band = not (x < mp[P_LO, r, bb] or x > mp[P_HI, r, bb])
     ms[S_SETTLE_SINCE, r, bb] = 0.0 if in_band else math.nan
-    ms[S_STOP_SINCE, r, bb] = 0.0 if abs(x - mp[P_XEND, r, bb]) <= mp[P_STOP, r, bb] else math.nan
+    ms[S_CHANGED, r, bb] = 0.0
 
 
 @kernel(inline="always")
 def stream_step(mp, ms, r, bb, vi, t_prev, t):
-    """Add the sample vi [V] at time t [s] (previous sample at t_prev [s]) to receiver r, lane bb.
+    """Add the sample vi [V] at time t [s] (previous sample at t_prev [s]) to stream r, lane bb.
 
-    The branches of edge_metrics_hyst's loop body for i >= 1, in its order.
+    The branches of edge_metrics_hyst's loop body for i >= 1, in its order;
+    ms[S_CHANGED] keeps the time of the last sample that changed any metric state.
     """
     x = mp[P_SGN, r, bb] * vi
     xp = ms[S_XPREV, r, bb]
     a_th = mp[P_A, r, bb]
     b_th = mp[P_B, r, bb]
     fall_back = mp[P_FALL, r, bb]
+    ch = False
     if vi > ms[S_VPEAK, r, bb]:
         ms[S_VPEAK, r, bb] = vi
+        ch = True
     if vi < ms[S_VTROUGH, r, bb]:
         ms[S_VTROUGH, r, bb] = vi
+        ch = True
     if x > ms[S_XMAX, r, bb]:
         ms[S_XMAX, r, bb] = x
+        ch = True
     # first entry into the threshold region
     if math.isnan(ms[S_TSWITCH, r, bb]) and x >= a_th:
         ms[S_TSWITCH, r, bb] = _cross(t_prev, t, xp, x, a_th)
         ms[S_TRANSIT, r, bb] = 1.0
+        ch = True
     # first arrival at the valid threshold ends the transit
     valid = ms[S_VALID, r, bb] > 0.5
     if not valid and x >= b_th:
         valid = True
         ms[S_VALID, r, bb] = 1.0
         ms[S_TRANSIT, r, bb] = 0.0
+        ch = True
     if ms[S_TRANSIT, r, bb] > 0.5:
         if x > ms[S_RUN_MAX, r, bb]:
             ms[S_RUN_MAX, r, bb] = x
+            ch = True
         if ms[S_RUN_MAX, r, bb] - x > fall_back:
             ms[S_MONO, r, bb] = 0.0
     # ringback window (first peak past the valid threshold, lowest level after it)
@@ -151,81 +152,51 @@ def stream_step(mp, ms, r, bb, vi, t_prev, t):
         if ms[S_FALLEN, r, bb] > 0.5:
             if x < ms[S_MIN_AFTER, r, bb]:
                 ms[S_MIN_AFTER, r, bb] = x
+                ch = True
         elif x > ms[S_PEAK, r, bb]:
             ms[S_PEAK, r, bb] = x
             ms[S_MIN_AFTER, r, bb] = x
+            ch = True
         else:
             if x < ms[S_MIN_AFTER, r, bb]:
                 ms[S_MIN_AFTER, r, bb] = x
+                ch = True
             if ms[S_PEAK, r, bb] - x > fall_back:
                 ms[S_FALLEN, r, bb] = 1.0
+                ch = True
     # valid from the last upward crossing of the valid threshold
     if x < b_th:
+        if not math.isnan(ms[S_VALID_SINCE, r, bb]):
+            ch = True
         ms[S_VALID_SINCE, r, bb] = math.nan
     elif xp < b_th:
         ms[S_VALID_SINCE, r, bb] = _cross(t_prev, t, xp, x, b_th)
+        ch = True
     # settled from the last entry into the band around the final level
     hi_band = mp[P_HI, r, bb]
     lo_band = mp[P_LO, r, bb]
     if x < lo_band or x > hi_band:
+        if not math.isnan(ms[S_SETTLE_SINCE, r, bb]):
+            ch = True
         ms[S_SETTLE_SINCE, r, bb] = math.nan
     elif math.isnan(ms[S_SETTLE_SINCE, r, bb]):
         level = hi_band if xp > hi_band else lo_band
         ms[S_SETTLE_SINCE, r, bb] = _cross(t_prev, t, xp, x, level)
-    # inside the stop band since (for ending the window early)
-    if abs(x - mp[P_XEND, r, bb]) > mp[P_STOP, r, bb]:
-        ms[S_STOP_SINCE, r, bb] = math.nan
-    elif math.isnan(ms[S_STOP_SINCE, r, bb]):
-        ms[S_STOP_SINCE, r, bb] = t
+        ch = True
+    if ch:
+        ms[S_CHANGED, r, bb] = t
     ms[S_XPREV, r, bb] = x
 
 
 @kernel(inline="always")
-def settled_final(mp, ms, r, bb, t, guard):
-    """True when receiver r, lane bb can no longer change any metric at time t [s].
-
-    Provided the pin stays within the stop band (half-width mp[P_STOP]) of its
-    final level x_end from now on, which it has done for at least guard [s]:
-    - t_switch and the valid state are fixed: the region was entered and the
-      valid threshold reached, with the band entirely past the valid threshold
-      (so t_valid, the monotonic flag and the transit are fixed too);
-    - the band lies inside the settle band, which was entered (settle_time fixed);
-    - v_peak, v_trough and the running maximum already lie outside the band
-      (no later sample can exceed them), and so does the post-peak minimum
-      (the ringback window is open or its peak is above the band, so a later
-      sample can only raise nothing and lower nothing).
-    """
-    since = ms[S_STOP_SINCE, r, bb]
-    if not (t - since >= guard):
-        return False
-    x_end = mp[P_XEND, r, bb]
-    eps = mp[P_STOP, r, bb]
-    lo = x_end - eps
-    hi = x_end + eps
-    if not (ms[S_VALID, r, bb] > 0.5) or not (lo >= mp[P_B, r, bb]) or math.isnan(ms[S_TSWITCH, r, bb]):
-        return False
-    if math.isnan(ms[S_SETTLE_SINCE, r, bb]) or lo < mp[P_LO, r, bb] or hi > mp[P_HI, r, bb]:
-        return False
-    sgn = mp[P_SGN, r, bb]
-    # extremes in x: the largest x seen (x_max, and v_peak / v_trough by the sign) above the band
-    if not (ms[S_XMAX, r, bb] > hi):
-        return False
-    x_of_vpeak = sgn * ms[S_VPEAK, r, bb]
-    x_of_vtrough = sgn * ms[S_VTROUGH, r, bb]
-    if sgn > 0.0:
-        if not (x_of_vpeak > hi and x_of_vtrough < lo):
-            return False
-    else:
-        if not (x_of_vtrough > hi and x_of_vpeak < lo):
-            return False
-    # ringback window: a sample in the band cannot open it (peak - x > fall_back) unless already
-    # open, nor set a new peak; and its minimum is already below the band
-    if not (ms[S_MIN_AFTER, r, bb] < lo):
-        return False
-    if ms[S_FALLEN, r, bb] > 0.5:
-        return True
-    # not yet fallen: a later sample in the band must neither set a new peak nor open the window
-    return ms[S_PEAK, r, bb] > hi and not (ms[S_PEAK, r, bb] - lo > mp[P_FALL, r, bb])
+def settled_final(ms, r, bb, t, guard):
+    """True when stream r, lane bb is taken as final at time t [s]: it has become valid
+    (t_switch and t_valid set), sits inside its settle band, and no sample of the
+    last guard [s] changed any of its metric states (see docs/metrics.md, "When a
+    sweep ends a window early", for why a bus settled that long stays so)."""
+    return (ms[S_VALID, r, bb] > 0.5 and not math.isnan(ms[S_TSWITCH, r, bb])
+            and not math.isnan(ms[S_VALID_SINCE, r, bb]) and not math.isnan(ms[S_SETTLE_SINCE, r, bb])
+            and t - ms[S_CHANGED, r, bb] >= guard)
 
 
 @kernel

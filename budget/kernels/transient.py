@@ -388,7 +388,7 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
        st_node[r], as it is or mirrored, see :mod:`budget.kernels.stream`)
        takes this step's sample; with ``early`` the block ends once every
        stream of every lane is final (:func:`~budget.kernels.stream.settled_final`,
-       pins inside their stop band for ``guard`` [s]), checked every
+       valid, inside the settle band and unchanged for ``guard`` [s]), checked every
        ``EARLY_CHECK_STEPS`` steps.
 
     Returns the number of samples computed (n_steps unless the block ended early).
@@ -523,7 +523,7 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
                     done = True
                     for r in range(n_st):
                         for bb in range(B):
-                            if not settled_final(mp, ms, r, bb, t, guard):
+                            if not settled_final(ms, r, bb, t, guard):
                                 done = False
                                 break
                         if not done:
