@@ -40,8 +40,8 @@ def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, r
     n_rcv = rcv_out.shape[0]
     n_st = n_e * n_rcv
     st_node = np.empty(n_st, dtype=np.int64)
-    mp = np.empty((N_PARAMS, n_st, B))
-    ms = np.empty((N_STATE, n_st, B))
+    mp = np.empty((n_st, N_PARAMS, B))
+    ms = np.empty((n_st, N_STATE, B))
     for e in range(n_e):
         rise_e = rising if e == 0 else not rising
         for r in range(n_rcv):
@@ -62,7 +62,7 @@ def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, r
                               dc[0, node, b] + dc[1, node, b])
                 v0 = v[node, bb]
                 if e == 1:
-                    v0 = mp[P_MIRC, s, bb] - v0
+                    v0 = mp[s, P_MIRC, bb] - v0
                 stream_start(mp, ms, s, bb, v0)
     no_wave = np.empty((0, 0, B))
     early = guard < math.inf
@@ -76,13 +76,13 @@ def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, r
             s = e * n_rcv + r
             for bb in range(B):
                 b = b0 + bb
-                stream_finish(mp, ms, s, bb, m)
+                stream_finish(mp, ms, s, bb, vals.dt, m)
                 for k in range(N_METRICS):
                     metrics_out[e, b, r, k] = m[k]
                 bits_out[e, b, r] = violation_bits(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
                 head_out[e, b, r] = headroom(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
-                levels_out[e, b, r, 0] = mp[P_VLO, s, bb]
-                levels_out[e, b, r, 1] = mp[P_VHI, s, bb]
+                levels_out[e, b, r, 0] = mp[s, P_VLO, bb]
+                levels_out[e, b, r, 1] = mp[s, P_VHI, bb]
     return n_done
 
 

@@ -507,15 +507,15 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
                 for bb in range(B):
                     wave_out[step, o, bb] = v[n, bb]
         if n_st > 0:
-            t_prev = (step - 1) * dt
+            stepf = float(step)
             for r in range(n_st):
                 n = st_node[r]
-                if mp[P_MIRROR, r, 0] > 0.5:
+                if mp[r, P_MIRROR, 0] > 0.5:
                     for bb in range(B):
-                        stream_step(mp, ms, r, bb, mp[P_MIRC, r, bb] - v[n, bb], t_prev, t)
+                        stream_step(mp, ms, r, bb, mp[r, P_MIRC, bb] - v[n, bb], stepf, t)
                 else:
                     for bb in range(B):
-                        stream_step(mp, ms, r, bb, v[n, bb], t_prev, t)
+                        stream_step(mp, ms, r, bb, v[n, bb], stepf, t)
             if early:
                 countdown -= 1
                 if countdown == 0:
