@@ -16,9 +16,10 @@ from .line_model import vmax
 
 __all__ = ["settle_guard", "GUARD_PASSES", "GUARD_RC_TAUS"]
 
-# The guard: this many one-way passes over every line of the bus in series (an
-# upper bound on the longest path between any two nodes), so a wave still
-# travelling anywhere on the bus reaches a tap's stub and its pin inside the guard;
+# The guard: this many one-way passes over the longest path between any two
+# nodes (bounded by every segment in series plus the two longest stubs), so a
+# wave still travelling anywhere on the bus reaches a tap's stub and its pin
+# inside the guard;
 GUARD_PASSES = 2
 # plus this many time constants of the slowest RC termination and two ramps.
 GUARD_RC_TAUS = 3
@@ -29,15 +30,16 @@ def settle_guard(design, edge: str) -> float:
     """Guard time [s]: how long no sample may change a metric state before a block may end.
 
     design: the tolerance envelope (or any design; array values: their largest).
-    2 x the sum of every line's delay (segments and stubs) + 2 ramps + 3 x the
-    slowest RC termination's time constant; at least 1 ns.
+    2 x (the sum of every segment's delay + the two longest stub delays: a bound
+    on the longest path between two pins) + 2 ramps + 3 x the slowest RC
+    termination's time constant; at least 1 ns.
     """
     total_td = 0.0
     for s in design.segments:
         total_td += vmax(np.asarray(design.lines[s.line].delay) * s.length)
-    for t in design.taps:
-        if t.stub is not None:
-            total_td += vmax(np.asarray(design.lines[t.stub.line].delay) * t.stub.length)
+    stubs = sorted(vmax(np.asarray(design.lines[t.stub.line].delay) * t.stub.length)
+                   for t in design.taps if t.stub is not None)
+    total_td += sum(stubs[-2:])
     tau = 0.0
     for term in design.terminations:
         if term.type == "rc":
