@@ -13,7 +13,7 @@ import hashlib
 import os
 from pathlib import Path
 
-_MODULES = ("inputs", "transient", "metrics", "evaluate", "nonlinear")
+_MODULES = ("inputs", "stream", "transient", "metrics", "evaluate", "nonlinear")
 _STAMP = "busbudget-kernel-sources.sha256"
 
 

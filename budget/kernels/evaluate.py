@@ -1,27 +1,163 @@
-"""Numba kernel: transient + edge metrics + violations for a chunk of variants.
+"""Numba kernels: transient + edge metrics + violations for a chunk of variants.
 
 This is the throughput path used by sweeps, tolerance analyses, the budget
 check and the C library.  Variants are processed in blocks of ``LANES`` (the
 variant axis innermost, so the compiler can vectorise across it) and blocks
-run in parallel across cores (``prange``).  Waveforms live only in a
-per-block scratch buffer: memory does not grow with the number of variants.
+run in parallel across cores (``prange``).
+
+The metrics are computed inside the time loop, sample by sample
+(:mod:`budget.kernels.stream`): no waveform is stored.  A block may end its
+window early once every metric of every lane is final (``guard``).
+:func:`evaluate_chunk_both` computes both edges of a linear bus from one
+transient (the falling edge is the mirror of the rising one).
+:func:`evaluate_chunk_reference` is the former path (waveforms stored, then
+:func:`~budget.kernels.metrics.edge_metrics`), kept as the reference the
+tests compare the fused path with.
 """
 from __future__ import annotations
+
+import math
 
 import numpy as np
 from numba import prange
 
-from ..jit import parallel_kernel
+from ..jit import kernel, parallel_kernel
 from .metrics import N_METRICS, edge_metrics, headroom, violation_bits
-from .transient import LANES, run_block
+from .stream import N_PARAMS, N_STATE, P_MIRC, P_VHI, P_VLO, stream_finish, stream_params, stream_start
+from .transient import LANES, _block_setup, _finite_status, _time_loop, run_block
+
+
+@kernel(inline="always")
+def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin,
+                    alloc_v, alloc_frac, settle_frac, min_margin, t_ref, metrics_out, bits_out, head_out,
+                    levels_out, status, dc, guard):
+    """One block: set-up, the time loop with the metrics of n_e edges (1: the simulated one;
+    2: it and its mirror), then violations and headroom.  Returns the samples computed."""
+    B = len(lanes) if len(lanes) > 0 else bsz
+    out_node = topo.out_node
+    (ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap, g_ind, j_ind, inv, rhs0, rhs, v,
+     ha, hb, s0_d, m_d, off_d) = _block_setup(b0, bsz, lanes, topo, vals, dc, status)
+    n_rcv = rcv_out.shape[0]
+    n_st = n_e * n_rcv
+    st_node = np.empty(n_st, dtype=np.int64)
+    mp = np.empty((n_st, N_PARAMS, B))
+    ms = np.empty((n_st, N_STATE, B))
+    for e in range(n_e):
+        rise_e = rising if e == 0 else not rising
+        for r in range(n_rcv):
+            s = e * n_rcv + r
+            node = out_node[rcv_out[r]]
+            st_node[s] = node
+            for bb in range(B):
+                b = b0 + bb
+                if rising:
+                    v_lo = dc[0, node, b]
+                    v_hi = dc[1, node, b]
+                else:
+                    v_lo = dc[1, node, b]
+                    v_hi = dc[0, node, b]
+                swing = v_hi - v_lo
+                stream_params(mp, s, bb, rise_e, v_lo, v_hi, rcv_vil[r, b], rcv_vih[r, b], t_ref[e, b],
+                              settle_frac * abs(swing), alloc_v[r, b] + alloc_frac[r, b] * abs(swing), e == 1,
+                              dc[0, node, b] + dc[1, node, b])
+                v0 = v[node, bb]
+                if e == 1:
+                    v0 = mp[s, P_MIRC, bb] - v0
+                stream_start(mp, ms, s, bb, v0)
+    no_wave = np.empty((0, 0, B))
+    early = guard < math.inf
+    n_done = _time_loop(b0, bsz, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap,
+                        j_cap, g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, no_wave, False,
+                        (st_node, mp, ms, guard, early))
+    _finite_status(b0, bsz, lanes, topo, v, status)
+    m = np.empty(N_METRICS)
+    for e in range(n_e):
+        for r in range(n_rcv):
+            s = e * n_rcv + r
+            for bb in range(B):
+                b = b0 + bb
+                stream_finish(mp, ms, s, bb, vals.dt, m)
+                for k in range(N_METRICS):
+                    metrics_out[e, b, r, k] = m[k]
+                bits_out[e, b, r] = violation_bits(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
+                head_out[e, b, r] = headroom(m, rcv_vmax[r, b], rcv_vmin[r, b], min_margin)
+                levels_out[e, b, r, 0] = mp[s, P_VLO, bb]
+                levels_out[e, b, r, 1] = mp[s, P_VHI, bb]
+    return n_done
 
 
 @parallel_kernel
 def evaluate_chunk(topo, vals, rising,
                    rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
                    settle_frac, min_margin, t_ref,
-                   metrics_out, bits_out, head_out, levels_out, status):
+                   metrics_out, bits_out, head_out, levels_out, status, guard=math.inf):
     """Evaluate N variants (N = t_ref.shape[0]) for one driver and one edge.
+
+    topo, vals: :class:`~budget.kernels.inputs.Topology`, :class:`~budget.kernels.inputs.Values`
+    (``Netlist.topology``, ``Netlist.values``); rising: the edge is a rising one.
+    rcv_out[r]: index into out_node of receiver r; rcv_vil, rcv_vih, rcv_vmax,
+    rcv_vmin [V], alloc_v [V] and alloc_frac [-] (of the receiver's swing) are
+    ``[n_rcv, N]``; settle_frac [-]; min_margin [V]; t_ref [s] per variant.
+    Writes metrics_out[N, n_rcv, N_METRICS], bits_out[N, n_rcv] (VIOL_*),
+    head_out[N, n_rcv] (headroom [V], see budget.kernels.metrics.headroom),
+    levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
+    guard [s]: a block ends once every metric of every lane is final and its pins
+    have stayed in their stop band this long (math.inf: the whole window).
+    Returns the number of time steps computed over all blocks.
+    """
+    n = t_ref.shape[0]
+    n_rcv = rcv_out.shape[0]
+    dc = np.empty((2, topo.n_nodes, n))
+    n_blk = (n + LANES - 1) // LANES
+    t_ref2 = t_ref.reshape((1, n))
+    m4 = metrics_out.reshape((1, n, n_rcv, N_METRICS))
+    b3 = bits_out.reshape((1, n, n_rcv))
+    h3 = head_out.reshape((1, n, n_rcv))
+    l4 = levels_out.reshape((1, n, n_rcv, 2))
+    steps = 0
+    for blk in prange(n_blk):
+        b0 = blk * LANES
+        bsz = min(LANES, n - b0)
+        steps += _evaluate_block(b0, bsz, (), topo, vals, rising, 1, rcv_out, rcv_vil, rcv_vih, rcv_vmax,
+                                 rcv_vmin, alloc_v, alloc_frac, settle_frac, min_margin, t_ref2, m4, b3, h3, l4,
+                                 status, dc, guard)
+    return steps
+
+
+@parallel_kernel
+def evaluate_chunk_both(topo, vals, rising,
+                        rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                        settle_frac, min_margin, t_ref,
+                        metrics_out, bits_out, head_out, levels_out, status, guard):
+    """:func:`evaluate_chunk` for both edges of a linear bus from one transient.
+
+    Valid only when the driver's two states have the same output resistance in
+    every variant and both edges share the ramp, time step and window: then the
+    bus is a linear network driven by one ramped source, and the other edge's
+    pin waveform is V_lo + V_hi - v(t) (superposition).  t_ref [2, N] [s]: row 0
+    for the simulated edge (``rising``), row 1 for the other; outputs gain a
+    leading edge axis of 2 (metrics_out[2, N, n_rcv, N_METRICS], ...).
+    """
+    n = t_ref.shape[1]
+    dc = np.empty((2, topo.n_nodes, n))
+    n_blk = (n + LANES - 1) // LANES
+    steps = 0
+    for blk in prange(n_blk):
+        b0 = blk * LANES
+        bsz = min(LANES, n - b0)
+        steps += _evaluate_block(b0, bsz, (), topo, vals, rising, 2, rcv_out, rcv_vil, rcv_vih, rcv_vmax,
+                                 rcv_vmin, alloc_v, alloc_frac, settle_frac, min_margin, t_ref, metrics_out,
+                                 bits_out, head_out, levels_out, status, dc, guard)
+    return steps
+
+
+@parallel_kernel
+def evaluate_chunk_reference(topo, vals, rising,
+                   rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                   settle_frac, min_margin, t_ref,
+                   metrics_out, bits_out, head_out, levels_out, status):
+    """The reference path of :func:`evaluate_chunk` (same arguments, no guard): waveforms stored per
+    block, transposed, then :func:`~budget.kernels.metrics.edge_metrics` on each.
 
     topo, vals: :class:`~budget.kernels.inputs.Topology`, :class:`~budget.kernels.inputs.Values`
     (``Netlist.topology``, ``Netlist.values``); rising: the edge is a rising one.

@@ -37,6 +37,7 @@ import math
 import numpy as np
 
 from ..jit import kernel
+from .stream import P_MIRC, P_MIRROR, settled_final, stream_step
 
 
 STATUS_OK = 0
@@ -50,6 +51,10 @@ STATUS_NOT_FINITE = 3         # the transient produced inf/nan
 # benchmark bus but 12 % slower per drop on the 64-drop one (a block's state and
 # waveforms no longer fit the caches), so 32.  A single simulation runs one lane.
 LANES = 32
+
+# Steps between two checks whether a sweep block may end early (every lane's
+# every metric final): the check costs about one metric update.
+EARLY_CHECK_STEPS = 32
 
 
 @kernel
@@ -338,7 +343,7 @@ def _lagrange_weights(q, fr, B, qmin, ntap, tap_off):
 
 @kernel(inline="always")
 def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap,
-               g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record):
+               g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record, streams):
     """The time loop of one block: steps 1 .. n_steps-1 of every lane (set-up done by run_block).
 
     Inlined into run_block (numba IR inlining), so the block size is a
@@ -377,12 +382,25 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
        networks", IEEE Trans. PAS-88(4), 1969): capacitor (G = 2C/dt)
        J' = 2 G u - J; inductor (G = dt/(2L)) J' = J + 2 G u, u = v_a - v_b.
     8. Pin voltages into wave_out[step, pin, lane] when recording.
+    9. Metrics in the loop (sweeps): streams = (st_node, mp, ms, guard, early)
+       (one tuple: a call of more than 30 arguments is compiled as f(*args),
+       which numba cannot inline).  Every metric stream r (a receiver pin
+       st_node[r], as it is or mirrored, see :mod:`budget.kernels.stream`)
+       takes this step's sample; with ``early`` the block ends once every
+       stream of every lane is final (:func:`~budget.kernels.stream.settled_final`,
+       valid, inside the settle band and unchanged for ``guard`` [s]), checked every
+       ``EARLY_CHECK_STEPS`` steps.
+
+    Returns the number of samples computed (n_steps unless the block ended early).
     """
     B = len(lanes) if len(lanes) > 0 else nb
     line_a, line_b, cap_a, cap_b, ind_a, ind_b = topo.line_a, topo.line_b, topo.cap_a, topo.cap_b, topo.ind_a, topo.ind_b
     cl_start, cl_moff, ring_len, out_node, drv_node = topo.cl_start, topo.cl_moff, topo.ring_len, topo.out_node, topo.drv_node
     t_ramp, drv_v0, drv_r0, drv_v1, drv_r1 = vals.t_ramp, vals.drv_v0, vals.drv_r0, vals.drv_v1, vals.drv_r1
     dt = vals.dt
+    st_node, mp, ms, guard, early = streams
+    n_st = st_node.shape[0]
+    countdown = EARLY_CHECK_STEPS
     for step in range(1, vals.n_steps):
         t = step * dt
         # line histories h_a(t) = w_b(t - TD), h_b(t) = w_a(t - TD) [A]: Lagrange-interpolated ring samples
@@ -488,41 +506,51 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
                 n = out_node[o]
                 for bb in range(B):
                     wave_out[step, o, bb] = v[n, bb]
-    return 0
+        if n_st > 0:
+            stepf = float(step)
+            for r in range(n_st):
+                n = st_node[r]
+                if mp[r, P_MIRROR, 0] > 0.5:
+                    for bb in range(B):
+                        stream_step(mp, ms, r, bb, mp[r, P_MIRC, bb] - v[n, bb], stepf, t)
+                else:
+                    for bb in range(B):
+                        stream_step(mp, ms, r, bb, v[n, bb], stepf, t)
+            if early:
+                countdown -= 1
+                if countdown == 0:
+                    countdown = EARLY_CHECK_STEPS
+                    done = True
+                    for r in range(n_st):
+                        for bb in range(B):
+                            if not settled_final(ms, r, bb, t, guard):
+                                done = False
+                                break
+                        if not done:
+                            break
+                    if done:
+                        return step + 1
+    return vals.n_steps
 
 
 # ---- the block driver -------------------------------------------------------------------
 
-@kernel
-def run_block(b0, nb, lanes, topo, vals, wave_out, dc_out, status):
-    """Simulate variants b0 .. b0+B-1 of one flattened bus.
+@kernel(inline="always")
+def _block_setup(b0, nb, lanes, topo, vals, dc_out, status):
+    """Set-up of one block (inlined into its callers): DC states, histories, cluster inverses, weights.
 
-    topo, vals: :class:`~budget.kernels.inputs.Topology` and
-    :class:`~budget.kernels.inputs.Values` (``Netlist.topology``, ``Netlist.values``);
-    values are ``[item, N]`` arrays over all N variants.
-    The block size B is ``len(lanes)`` when ``lanes`` is a non-empty tuple (a
-    compile-time constant: pass ``(0,)`` for a single variant, so the compiler
-    drops the per-variant loops' vectorisation checks, 5x faster per step),
-    else the run-time ``nb`` (sweeps: LLVM vectorises the per-variant loops).
-
-    Writes pin waveforms wave_out[step, out, b - b0] [V] (block-local variant
-    index) when wave_out has n_steps rows (else records nothing), the DC node
-    voltages of the start and end states into dc_out[0 or 1, node, b] [V], and
-    a STATUS_* per variant into status[b].
+    Fills dc_out[0 or 1, node, b] [V] (start and end states) and status[b];
+    returns the block state the time loop takes, with v holding the DC start state.
     """
     B = len(lanes) if len(lanes) > 0 else nb
     n_nodes = topo.n_nodes
     cl_start = topo.cl_start
-    out_node = topo.out_node
     drv_node = topo.drv_node
     ring_len = topo.ring_len
     nl = topo.line_a.shape[0]
     nc = topo.cap_a.shape[0]
     ni = topo.ind_a.shape[0]
     n_cl = cl_start.shape[0] - 1
-    dt = vals.dt
-    n_steps = vals.n_steps
-    record = wave_out.shape[0] == n_steps
 
     # ---- per-variant scratch -------------------------------------------------
     vdc = np.empty(n_nodes)
@@ -587,19 +615,51 @@ def run_block(b0, nb, lanes, topo, vals, wave_out, dc_out, status):
             status[b] = STATUS_CLUSTER_SINGULAR
 
     wts = _lagrange_weights(q, fr, B, qmin, ntap, tap_off)
+    return (ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap, g_ind, j_ind, inv, rhs0, rhs, v,
+            ha, hb, s0_d, m_d, off_d)
 
+
+@kernel(inline="always")
+def _finite_status(b0, nb, lanes, topo, v, status):
+    """STATUS_NOT_FINITE for every lane whose last pin voltages are not finite."""
+    B = len(lanes) if len(lanes) > 0 else nb
+    out_node = topo.out_node
+    for bb in range(B):
+        for o in range(out_node.shape[0]):
+            if not math.isfinite(v[out_node[o], bb]):
+                status[b0 + bb] = STATUS_NOT_FINITE
+
+
+@kernel
+def run_block(b0, nb, lanes, topo, vals, wave_out, dc_out, status):
+    """Simulate variants b0 .. b0+B-1 of one flattened bus.
+
+    topo, vals: :class:`~budget.kernels.inputs.Topology` and
+    :class:`~budget.kernels.inputs.Values` (``Netlist.topology``, ``Netlist.values``);
+    values are ``[item, N]`` arrays over all N variants.
+    The block size B is ``len(lanes)`` when ``lanes`` is a non-empty tuple (a
+    compile-time constant: pass ``(0,)`` for a single variant, so the compiler
+    drops the per-variant loops' vectorisation checks, 5x faster per step),
+    else the run-time ``nb`` (sweeps: LLVM vectorises the per-variant loops).
+
+    Writes pin waveforms wave_out[step, out, b - b0] [V] (block-local variant
+    index) when wave_out has n_steps rows (else records nothing), the DC node
+    voltages of the start and end states into dc_out[0 or 1, node, b] [V], and
+    a STATUS_* per variant into status[b].
+    """
+    B = len(lanes) if len(lanes) > 0 else nb
+    out_node = topo.out_node
+    record = wave_out.shape[0] == vals.n_steps
+    (ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap, g_ind, j_ind, inv, rhs0, rhs, v,
+     ha, hb, s0_d, m_d, off_d) = _block_setup(b0, nb, lanes, topo, vals, dc_out, status)
     if record:
         for o in range(out_node.shape[0]):
             for bb in range(B):
                 wave_out[0, o, bb] = v[out_node[o], bb]
-
-    # ---- time loop ---------------------------------------------------------------
+    no_rcv = np.empty(0, dtype=np.int64)
+    no_state = np.empty((0, 0, B))
     _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap,
-               g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record)
-
-    for bb in range(B):
-        b = b0 + bb
-        for o in range(out_node.shape[0]):
-            if not math.isfinite(v[out_node[o], bb]):
-                status[b] = STATUS_NOT_FINITE
+               g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record,
+               (no_rcv, no_state, no_state, 0.0, False))
+    _finite_status(b0, nb, lanes, topo, v, status)
     return 0
