@@ -197,7 +197,8 @@ def t_ref_of(design: Design, driver: str, edge: str, n: int) -> np.ndarray:
     part = design.parts[design.tap(driver).part]
 
     def arr(x, default=0.0):
-        return np.ascontiguousarray(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
+        # always a writable copy: a read-only view would compile a second signature of ref_times
+        return np.array(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
     lo, hi = (part.v_low, part.r_low), (part.v_high, part.r_high)
     (v0, r0), (v1, r1) = (lo, hi) if edge == "rise" else (hi, lo)
     ref = part.ref_load
