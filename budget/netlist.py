@@ -43,6 +43,7 @@ from .line_model import vmax as _vmax
 from .line_model import vmin as _vmin
 from .model import Design
 from .roles import driving_part
+from . import step_accuracy
 
 # Re-exported for the modules that import them from here.
 __all__ = ["EDGES", "RISE", "FALL", "Netlist", "choose_dt", "default_t_stop", "flatten", "line_delays",
@@ -167,6 +168,12 @@ def tolerance_envelope(design: Design, values=None) -> Design:
     return env
 
 
+def auto_step(env: Design, edge: str):
+    """The automatic time step of the envelope design ``env`` for ``edge``, chosen by its estimated
+    accuracy (:mod:`budget.step_accuracy`; the design's ``bus.dt`` if it gives one)."""
+    return step_accuracy.choose(env, edge, flatten)   # flatten passed in: step_accuracy sits below this module
+
+
 def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             t_stop: float | None = None, envelope: Design | None = None) -> Netlist:
     """Flatten ``design`` with tap ``driver`` driving an ``edge`` (RISE or FALL).
@@ -182,7 +189,15 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     dpart = driving_part(design, driver)
     n = design.batch_size or 1
     env = envelope if envelope is not None else tolerance_envelope(design)
-    dt = float(dt if dt is not None else choose_dt(env, edge))
+    if dt is None:
+        step = auto_step(env, edge)
+        dt = step.dt
+        if step.note and step.note != "design step":
+            notes_step = [step.note]
+        else:
+            notes_step = []
+    else:
+        dt, notes_step = float(dt), []
     if t_stop is None:
         t_stop = design.bus.t_stop if design.bus.t_stop is not None else default_t_stop(env, edge)
     t_stop = _vmax(t_stop)
@@ -201,7 +216,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
                             "shorten t_stop or lengthen dt")
 
     b = _Builder(n)
-    notes = []
+    notes = list(notes_step)
     t_ramp_edge = ramp_time(design, edge)
     for name in design.nodes:
         b.node(name)

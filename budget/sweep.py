@@ -24,7 +24,7 @@ from .kernels import metrics as mk
 from .kernels.evaluate import evaluate_chunk
 from .metrics import allocation_terms
 from .model import Design
-from .netlist import EDGES, RISE, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
+from .netlist import EDGES, RISE, auto_step, default_t_stop, flatten, ramp_time, tolerance_envelope
 from .roles import driving_part
 from .simulate import check_status
 
@@ -149,7 +149,7 @@ def plan(design: Design, values: dict, edges, dt=None, t_stop=None):
     env = tolerance_envelope(design, values)
     dts, tss = {}, {}
     for e in edges:
-        dts[e] = float(dt) if dt is not None else choose_dt(env, e)
+        dts[e] = float(dt) if dt is not None else auto_step(env, e).dt
         if t_stop is not None:
             tss[e] = float(t_stop)
         elif design.bus.t_stop is not None:

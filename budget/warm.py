@@ -3,10 +3,10 @@
 A fresh machine pays numba's compile time once, on the first call of each
 kernel; a production test rig should pay it at install time, not in its first
 production slot.  :func:`warm` runs a small fixed workload through the very
-code paths the commands and the C library use -- a simulation (one lane), a
-batch of waveforms (a block of lanes), a budget check with its tolerance
-corners (the batched evaluation), waveforms, a capture judged and correlated,
-a TDR profile, the metric functions of the Python API -- so that every kernel
+Python calls the commands and the C library make -- a budget check with its
+tolerance corners (the batched evaluation), one simulation (one lane), a batch
+of waveforms (a block of lanes), a capture judged and correlated, a TDR
+profile, the metric functions of the Python API -- so that every kernel
 entry point is compiled for every argument type the package passes it, and
 reports what it compiled and what it found already cached.
 
@@ -16,15 +16,11 @@ upgrade; it compiles nothing when the kernel sources did not change.
 """
 from __future__ import annotations
 
-import contextlib
-import io
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-
-from .errors import SimulationError
 
 CAPTURES = Path(__file__).resolve().parent / "examples" / "captures"
 
@@ -46,17 +42,6 @@ def kernel_dispatchers() -> dict:
             if isinstance(obj, numba.core.registry.CPUDispatcher) and obj.py_func.__module__ == modname:
                 out[f"{modname.removeprefix('budget.')}.{name}"] = obj
     return out
-
-
-def _cli(*argv) -> int:
-    from .cli import main
-
-    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()) as err:
-        code = main(list(argv))
-    if code not in (0, 1):   # 0 pass, 1 fail: both ran every kernel they need
-        raise SimulationError(f"busbudget warm: 'busbudget {' '.join(argv)}' exited {code}: "
-                              f"{err.getvalue().strip()}")
-    return code
 
 
 def _batch_waveforms():
@@ -83,21 +68,56 @@ def _metric_api():
     metrics.edge_metrics(w.t, v, edge="rise", v_lo=float(w.v_start[k]), v_hi=float(w.v_end[k]), vil=0.7, vih=1.7)
 
 
-def workload(tmp: Path) -> list:
-    """(label, callable) of every step of the warm-up (``tmp``: a folder for output files)."""
-    cap = str(CAPTURES / "wren_unit0042_rise.csv")
-    channels = ("--channel", "CH1=CTRL", "--channel", "CH2=MEM1", "--channel", "CH3=MEM3")
+def _captured(edge_file: str):
+    import budget
+    from .capture import read_capture
+
+    return budget.example("short-bus"), read_capture(CAPTURES / edge_file)
+
+
+CHANNELS = {"CH1": "CTRL", "CH2": "MEM1", "CH3": "MEM3"}
+
+
+def _check():
+    import budget
+    budget.check(budget.example("short-bus"))
+
+
+def _waves():
+    import budget
+    budget.simulate(budget.example("short-bus"), "CTRL", "rise")
+
+
+def _judge():
+    from .judge import judge_capture
+    d, cap = _captured("wren_unit0042_rise.csv")
+    judge_capture(d, cap, "CTRL", "rise", channels=CHANNELS)
+
+
+def _correlate():
+    from .correlate import correlate
+    d, cap = _captured("wren_unit0042_rise.csv")
+    correlate(d, cap, "CTRL", "rise", channels=CHANNELS)
+
+
+def _tdr():
+    from .capture import read_capture
+    from .tdr import tdr_profile
+    cap = read_capture(CAPTURES / "wren_trunk_tdr.csv")
+    tdr_profile(cap.t, cap[cap.names[0]], source_r=50.0, emf=0.25, er_eff=3.6, source=cap.source)
+
+
+def workload() -> list:
+    """(label, callable) of every step of the warm-up: the Python calls behind ``check`` (with tolerance
+    corners), ``waves``, ``plot`` (a batch of waveforms), ``judge``, ``correlate`` and ``tdr``, and the
+    metric functions of the Python API."""
     return [
-        ("check with tolerance corners", lambda: _cli("check", "example:short-bus", "--json")),
-        ("waveforms of one edge", lambda: _cli("waves", "example:short-bus", "--driver", "CTRL", "--edge", "rise",
-                                              "--csv", str(tmp / "waves.csv"))),
+        ("check with tolerance corners", _check),
+        ("waveforms of one edge", _waves),
         ("a batch of waveforms", _batch_waveforms),
-        ("judge a capture", lambda: _cli("judge", "example:short-bus", "--capture", cap, "--driver", "CTRL",
-                                         "--edge", "rise", *channels)),
-        ("correlate a capture", lambda: _cli("correlate", "example:short-bus", "--capture", cap, "--driver",
-                                             "CTRL", "--edge", "rise", *channels)),
-        ("TDR profile", lambda: _cli("tdr", str(CAPTURES / "wren_trunk_tdr.csv"), "--source-r", "50 ohm",
-                                     "--emf", "250 mV", "--er-eff", "3.6")),
+        ("judge a capture", _judge),
+        ("correlate a capture", _correlate),
+        ("TDR profile", _tdr),
         ("metric functions", _metric_api),
     ]
 
@@ -136,18 +156,15 @@ class WarmReport:
 
 def warm(log=None) -> WarmReport:
     """Compile or load every kernel; ``log(message)`` is called before each step."""
-    import tempfile
-
     t0 = time.perf_counter()
     disp = kernel_dispatchers()
     steps = []
-    with tempfile.TemporaryDirectory(prefix="busbudget-warm-") as tmp:
-        for label, fn in workload(Path(tmp)):
-            if log:
-                log(label)
-            ts = time.perf_counter()
-            fn()
-            steps.append((label, time.perf_counter() - ts))
+    for label, fn in workload():
+        if log:
+            log(label)
+        ts = time.perf_counter()
+        fn()
+        steps.append((label, time.perf_counter() - ts))
     kernels, folders = [], []
     for name, d in sorted(disp.items()):
         st = d.stats
