@@ -598,7 +598,7 @@ def cmd_warm(args) -> int:
     from .warm import warm
 
     log = None if args.json else (lambda m: print(f"  {m} ...", file=sys.stderr, flush=True))
-    rep = warm(log=log)
+    rep = warm(log=log, jobs=args.jobs)
     if args.json:
         sys.stdout.write(json.dumps(rep.to_json(), indent=2, allow_nan=False) + "\n")
     else:
@@ -629,6 +629,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     wm = sub.add_parser("warm", help="compile every kernel into the on-disk cache (run once at install time)")
     wm.add_argument("--json", action="store_true", help="one busbudget.warm/1 JSON document instead of the table")
+    wm.add_argument("--jobs", type=int, choices=(1, 2), default=2 if (os.cpu_count() or 1) >= 2 else 1,
+                    help="processes compiling at once (default 2 on a machine with 2 or more cores)")
     wm.set_defaults(func=cmd_warm)
 
     e = sub.add_parser("examples", help="list the bundled example designs")

@@ -191,11 +191,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     env = envelope if envelope is not None else tolerance_envelope(design)
     if dt is None:
         step = auto_step(env, edge)
-        dt = step.dt
-        if step.note and step.note != "design step":
-            notes_step = [step.note]
-        else:
-            notes_step = []
+        dt, notes_step = step.dt, ([step.note] if step.note else [])
     else:
         dt, notes_step = float(dt), []
     if t_stop is None:

@@ -49,9 +49,10 @@ MAX_DRIVERS = 3
 
 
 class StepChoice(NamedTuple):
-    """The automatic step of one (envelope, edge): dt [s]; h0 [s] the rules' largest step;
-    error [-] the estimated error of dt (fraction of the swing; nan if not estimated);
-    verified: the estimate was made and met TARGET_ERROR; note: why not, if not."""
+    """The automatic step of one (envelope, edge): dt [s]; h0 [s] the rules' largest step (the
+    design's ``bus.dt`` when it gives one); error [-] the estimated error of dt (fraction of the
+    swing; nan if not estimated); verified: the estimate was made and met TARGET_ERROR; note: for
+    the waveform notes, why an automatic step is not verified (empty otherwise)."""
     dt: float
     h0: float
     error: float
@@ -107,7 +108,7 @@ def choose(env, edge: str, flatten) -> StepChoice:
         return hit
     if env.bus.dt is not None:
         h0 = choose_dt(env, edge)
-        return StepChoice(h0, h0, math.nan, False, "design step")
+        return StepChoice(h0, h0, math.nan, False)          # the design's own step: no estimate
     h0 = choose_dt(env, edge)
     drivers = estimate_drivers(env)
     runs: dict = {}

@@ -30,9 +30,11 @@ import test_reference_skrf as ref  # noqa: E402
 REFERENCE_BUS = HERE.parent / "benchmarks" / "reference_8drop.toml"
 
 
-@pytest.mark.parametrize("key", ["lossy", "star", "known:lossy_sectioned_trunk"])
+@pytest.mark.parametrize("key", ["lossy", "star", "known:lossy_sectioned_trunk", "benchmark-reference"])
 def test_estimated_error_tracks_the_true_error(key):
-    if key.startswith("known:"):
+    if key == "benchmark-reference":
+        design = budget.load(REFERENCE_BUS)
+    elif key.startswith("known:"):
         design = budget.load(HERE / "designs" / "known_misses" / f"{key[6:]}.toml")
     else:
         design = ref._design(key)
@@ -52,8 +54,9 @@ def test_estimated_error_tracks_the_true_error(key):
 
 
 def test_the_error_shrinks_as_the_square_of_the_step():
-    """d(h, h/2) / d(h/2, h/4) on the reference bus lies between 2 (first order) and 4 (second order)
-    or a little above: the range for which a 0.5 % estimate keeps the true error under 1 %."""
+    """d(h, h/2) / d(h/2, h/4) on the reference bus at the rules' largest step: 4 for a second-order
+    error, 2 for a first-order one.  The estimate 4/3 d(h) <= 0.5 % keeps the true error
+    d(h) / (1 - 1/ratio) under 1 % for any ratio >= 1.6."""
     design = budget.load(REFERENCE_BUS)
     env = tolerance_envelope(design)
     h0 = auto_step(env, "rise").h0
@@ -61,7 +64,7 @@ def test_the_error_shrinks_as_the_square_of_the_step():
     ratio = sa.difference(runs[0], runs[1]) / sa.difference(runs[1], runs[2])
     accuracy_record(f"step estimate: convergence ratio d(h)/d(h/2) on the 8-drop reference bus {ratio:.2f} "
                     "(2 first order, 4 second order)")
-    assert 2.0 <= ratio <= 6.0
+    assert 1.6 <= ratio <= 8.0
 
 
 def test_every_variant_shares_the_step_of_its_tolerance_box():

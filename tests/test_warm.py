@@ -58,7 +58,7 @@ def _run(code: str, cwd: Path, cache: Path) -> dict:
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
-WARM = "import json; from budget.warm import warm; print(json.dumps(warm().to_json()))"
+WARM = "import json; from budget.warm import warm; print(json.dumps(warm(jobs={jobs}).to_json()))"
 
 MISSES_AFTER_CHECKS = """
 import json, budget
@@ -89,9 +89,9 @@ def test_cache_survives_a_move_and_is_dropped_when_a_kernel_source_changes(tmp_p
     first, second = tmp_path / "v1", tmp_path / "v2"
     for dst in (first, second):
         shutil.copytree(ROOT / "budget", dst / "budget", ignore=shutil.ignore_patterns("__pycache__"))
-    cold = _run(WARM, first, cache)
-    assert cold["compiled"] > 0
-    again = _run(WARM, second, cache)
+    cold = _run(WARM.format(jobs=2), first, cache)          # with the helper process
+    assert cold["compiled"] > 0 and cold["helper_compiled"] > 0
+    again = _run(WARM.format(jobs=1), second, cache)
     assert again["compiled"] == 0 and again["loaded"] > 0
     checks = _run(MISSES_AFTER_CHECKS, second, cache)
     assert checks["misses"] == 0 and checks["hits"] > 0
