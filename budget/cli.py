@@ -640,6 +640,21 @@ def _seconds(text: str) -> float:
     return value
 
 
+def cmd_warm(args) -> int:
+    """Compile every kernel into numba's on-disk cache (or find it there): text table or busbudget.warm/1 JSON."""
+    import json
+
+    from .warm import warm
+
+    log = None if args.json else (lambda m: print(f"  {m} ...", file=sys.stderr, flush=True))
+    rep = warm(log=log, jobs=args.jobs)
+    if args.json:
+        sys.stdout.write(json.dumps(rep.to_json(), indent=2, allow_nan=False) + "\n")
+    else:
+        sys.stdout.write(rep.text())
+    return EXIT_PASS
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="busbudget",
@@ -660,6 +675,12 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--t-stop", type=_seconds, default=None, help="window, e.g. '40 ns' (default: automatic)")
     _measured_options(w, log=False)
     w.set_defaults(func=cmd_waves)
+
+    wm = sub.add_parser("warm", help="compile every kernel into the on-disk cache (run once at install time)")
+    wm.add_argument("--json", action="store_true", help="one busbudget.warm/1 JSON document instead of the table")
+    wm.add_argument("--jobs", type=int, choices=(1, 2), default=2 if (os.cpu_count() or 1) >= 2 else 1,
+                    help="processes compiling at once (default 2 on a machine with 2 or more cores)")
+    wm.set_defaults(func=cmd_warm)
 
     e = sub.add_parser("examples", help="list the bundled example designs")
     e.set_defaults(func=cmd_examples)

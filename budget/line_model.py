@@ -14,7 +14,8 @@ A line type (z0 [ohm], delay [s/m], r_dc [ohm/m]) over a length [m] becomes one 
 
 Structural choices (lumped or not, the number of sections) are made from the
 tolerance envelope (see :func:`budget.netlist.tolerance_envelope`) so every
-variant of a batch shares them.  The time step and window are chosen here too.
+variant of a batch shares them.  The window and the largest step worth trying are
+chosen here too (the step itself by accuracy: :mod:`budget.step_accuracy`).
 """
 from __future__ import annotations
 
@@ -25,18 +26,16 @@ import numpy as np
 from .edges import ramp_time
 from .errors import DesignError
 
-# -- accuracy policy of the automatic time step --------------------------------
-# Chosen against the scikit-rf reference (tests/test_reference_skrf.py): with these
-# the worst pin error over the test buses and bundled examples is 0.25 % of the swing
-# and the worst 50 % crossing error 0.29 % of the rise time (targets: 1 % and 2 %);
-# over all 128 tolerance corners of the backplane example, 0.49 % of the swing
-# against a 2.5 ps step.
+# -- the largest step worth trying ------------------------------------------------
+# The automatic step is chosen by its estimated accuracy (budget/step_accuracy.py): these
+# rules only give the largest step it tries, h0, where the error of the method is still in
+# its asymptotic (h^2) regime so that a two-step estimate can be trusted.
 # Samples across the 0-100 % ramp (10-90 % rise / 0.8 = 0-100 % ramp, linear ramp geometry).
-STEPS_PER_RAMP = 32
+STEPS_PER_RAMP = 16
 # Samples per period of the fastest package L - pin C resonance: the trapezoidal rule
-# shifts a resonance by about (w dt)^2 / 12, 1.3 % at 16 samples a period, and the line
-# or resistor on the pad side damps it within a few periods.
-STEPS_PER_LC_PERIOD = 16
+# shifts a resonance by about (w dt)^2 / 12 (5 % at 8 samples a period); coarser than
+# this the error is no longer a smooth function of the step.
+STEPS_PER_LC_PERIOD = 8
 # Lumped series loss: sections such that each lumped piece reflects < 0.25 % of a wave,
 # i.e. R_section/(4 z0) <= 0.0025.
 LOSS_SECTION_FRACTION = 0.01
@@ -62,15 +61,16 @@ def vmin(x) -> float:
 # -- time step and window ------------------------------------------------------
 
 def choose_dt(design, edge: str) -> float:
-    """Automatic time step [s] for ``edge`` (or the design's ``bus.dt``).
+    """Largest automatic time step [s] worth trying for ``edge`` (or the design's ``bus.dt``).
 
-    The step resolves the driver's ramp (STEPS_PER_RAMP samples over its 0-100 %
-    time) and the fastest package-inductance resonance (STEPS_PER_LC_PERIOD
-    samples a period).  A line shorter than the step is lumped, which cannot
+    The step actually used is the largest of h0, h0/sqrt(2), h0/2, ... that meets the
+    accuracy estimate of :func:`budget.step_accuracy.choose`; this is h0.  It resolves
+    the driver's ramp (STEPS_PER_RAMP samples over its 0-100 % time) and the fastest
+    package-inductance resonance (STEPS_PER_LC_PERIOD samples a period).  A line shorter than the step is lumped, which cannot
     ring at its quarter-wave frequency; the corners of a linear ramp of T excite
     that ringing with up to about 2 TD / (pi T) of the swing, so only lines with
     TD < T / LUMPABLE_RAMP_FRACTION may be lumped, and longer ones shorten the
-    step to their own delay (at most LUMPABLE_RAMP_FRACTION / STEPS_PER_RAMP = 4x).
+    step to their own delay (at most LUMPABLE_RAMP_FRACTION / STEPS_PER_RAMP = 8x).
     """
     if design.bus.dt is not None:
         return vmin(design.bus.dt)

@@ -43,6 +43,7 @@ from .line_model import vmax as _vmax
 from .line_model import vmin as _vmin
 from .model import Design
 from .roles import driving_part
+from . import step_accuracy
 
 # Re-exported for the modules that import them from here.
 __all__ = ["EDGES", "RISE", "FALL", "Netlist", "choose_dt", "default_t_stop", "flatten", "line_delays",
@@ -192,6 +193,12 @@ def _geometry_corners(design: Design, span: dict) -> dict:
     return out
 
 
+def auto_step(env: Design, edge: str):
+    """The automatic time step of the envelope design ``env`` for ``edge``, chosen by its estimated
+    accuracy (:mod:`budget.step_accuracy`; the design's ``bus.dt`` if it gives one)."""
+    return step_accuracy.choose(env, edge, flatten)   # flatten passed in: step_accuracy sits below this module
+
+
 def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
             t_stop: float | None = None, envelope: Design | None = None) -> Netlist:
     """Flatten ``design`` with tap ``driver`` driving an ``edge`` (RISE or FALL).
@@ -207,7 +214,11 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
     dpart = driving_part(design, driver)
     n = design.batch_size or 1
     env = envelope if envelope is not None else tolerance_envelope(design)
-    dt = float(dt if dt is not None else choose_dt(env, edge))
+    if dt is None:
+        step = auto_step(env, edge)
+        dt, notes_step = step.dt, ([step.note] if step.note else [])
+    else:
+        dt, notes_step = float(dt), []
     if t_stop is None:
         t_stop = design.bus.t_stop if design.bus.t_stop is not None else default_t_stop(env, edge)
     t_stop = _vmax(t_stop)
@@ -226,7 +237,7 @@ def flatten(design: Design, driver: str, edge: str, *, dt: float | None = None,
                             "shorten t_stop or lengthen dt")
 
     b = _Builder(n)
-    notes = []
+    notes = list(notes_step)
     t_ramp_edge = ramp_time(design, edge)
     for name in design.nodes:
         b.node(name)

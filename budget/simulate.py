@@ -76,8 +76,11 @@ def run_netlist(net: Netlist):
         return waves, dc, status
     for b0 in range(0, n, tk.LANES):
         bsz = min(tk.LANES, n - b0)
-        tk.run_block(b0, bsz, (0,) if bsz == 1 else (), net.topology, net.values,
-                     waves[:, :, b0:b0 + bsz], dc, status)
+        # a contiguous block buffer: one compiled signature of run_block per lane layout
+        blk = waves if bsz == n else np.empty((net.n_steps, n_out, bsz))
+        tk.run_block(b0, bsz, (0,) if bsz == 1 else (), net.topology, net.values, blk, dc, status)
+        if blk is not waves:
+            waves[:, :, b0:b0 + bsz] = blk
     return waves, dc, status
 
 

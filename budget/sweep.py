@@ -25,7 +25,7 @@ from .early_end import settle_guard
 from .kernels.evaluate import evaluate_chunk, evaluate_chunk_both
 from .metrics import allocation_terms
 from .model import Design
-from .netlist import EDGES, FALL, RISE, choose_dt, default_t_stop, flatten, ramp_time, tolerance_envelope
+from .netlist import EDGES, FALL, RISE, auto_step, default_t_stop, flatten, ramp_time, tolerance_envelope
 from .roles import driving_part
 from .simulate import check_status
 
@@ -150,7 +150,7 @@ def plan(design: Design, values: dict, edges, dt=None, t_stop=None):
     env = tolerance_envelope(design, values)
     dts, tss = {}, {}
     for e in edges:
-        dts[e] = float(dt) if dt is not None else choose_dt(env, e)
+        dts[e] = float(dt) if dt is not None else auto_step(env, e).dt
         if t_stop is not None:
             tss[e] = float(t_stop)
         elif design.bus.t_stop is not None:
@@ -201,7 +201,8 @@ def t_ref_of(design: Design, driver: str, edge: str, n: int, net=None) -> np.nda
         return t_ref_ibis(design, driver, edge, n, net)
 
     def arr(x, default=0.0):
-        return np.ascontiguousarray(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
+        # always a writable copy: a read-only view would compile a second signature of ref_times
+        return np.array(np.broadcast_to(np.asarray(default if x is None else x, dtype=float), (n,)))
     lo, hi = (part.v_low, part.r_low), (part.v_high, part.r_high)
     (v0, r0), (v1, r1) = (lo, hi) if edge == "rise" else (hi, lo)
     ref = part.ref_load

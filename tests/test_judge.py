@@ -95,6 +95,9 @@ def test_clean_engine_waveform_judged_as_capture_gives_checks_numbers():
                 assert row[key] == pytest.approx(ref[key], abs=1e-15), key
 
 
+NOISE_PROPERTY_GRID = {"short-bus": 1.5209170034901045e-11, "backplane": 2.4836470664490254e-11}   # [s]
+
+
 @pytest.mark.parametrize("name,driver", [("short-bus", "CTRL"), ("backplane", None)])
 @pytest.mark.parametrize("edge", ["rise", "fall"])
 def test_noise_never_raises_the_margin_by_more_than_one_sigma(name, driver, edge):
@@ -102,7 +105,10 @@ def test_noise_never_raises_the_margin_by_more_than_one_sigma(name, driver, edge
     one's by more than 1 sigma (the rule only ever opens the ringback window earlier; raw samples judged)."""
     d = budget.example(name)
     driver = driver or d.drivers[0]
-    w = budget.simulate(d, driver, edge)
+    # The bounds below (1 sigma, -8 sigma, the 35 % sigma estimate) were set over these 25 seeds on
+    # these grids (the automatic steps when the test was written); the statistics of 25 seeds x the
+    # receivers depend on the samples per ns, so the grid is fixed here rather than automatic.
+    w = budget.simulate(d, driver, edge, dt=NOISE_PROPERTY_GRID[name])
     taps = [r for r in d.receivers if r != driver]
     t, clean = with_pretrigger(w, taps, 3e-9)
     ref = judge_capture(d, Capture.from_arrays(t, clean), driver, edge, sim=w, t_edge=0.0)
@@ -123,7 +129,8 @@ def test_noise_never_raises_the_margin_by_more_than_one_sigma(name, driver, edge
 
 def test_without_the_noise_rule_noise_opens_the_window_on_the_rising_edge():
     """The contract's 2 % rule alone on a noisy trace (--noise 0) gives margins far too low; the rule fixes it."""
-    d, w = engine_sim("short-bus", "CTRL", "rise")
+    d = budget.example("short-bus")
+    w = budget.simulate(d, "CTRL", "rise", dt=NOISE_PROPERTY_GRID["short-bus"])   # grid fixed: see above
     t, clean = with_pretrigger(w, ["MEM1"], 3e-9)
     ref = margin_of(judge_capture(d, Capture.from_arrays(t, clean), "CTRL", "rise", sim=w).results[0])
     rng = np.random.default_rng(5)

@@ -203,17 +203,17 @@ def test_choose_dt_resolves_the_ramp():
 
 
 def test_choose_dt_resolves_the_package_resonance():
-    # 2 nH with 2 pF: period 2 pi sqrt(LC) = 0.397 ns, / 16 = 24.8 ps (39.06 ps from the ramp otherwise)
+    # 2 nH with 2 pF: period 2 pi sqrt(LC) = 0.397 ns, / 8 = 49.7 ps (78.1 ps from the ramp otherwise)
     dt = lm.choose_dt(bus(pkg='l_pkg = "2 nH"'), RISE)
     assert dt == near(2 * math.pi * math.sqrt(2e-9 * 2e-12) / lm.STEPS_PER_LC_PERIOD, rel=1e-12)
     assert dt < 1.25e-9 / lm.STEPS_PER_RAMP
 
 
 def test_choose_dt_shortens_to_a_line_it_must_not_lump():
-    # 5 mm at 5 ns/m = 25 ps: between ramp/128 (9.8 ps) and ramp/32 (39 ps), so dt = TD
+    # 5 mm at 5 ns/m = 25 ps: between ramp/128 (9.8 ps) and ramp/16 (78 ps), so dt = TD
     assert lm.choose_dt(bus(length="5 mm"), RISE) == near(25e-12, rel=1e-12)
     # 1 mm = 5 ps < ramp/128: may be lumped, the step stays
-    assert lm.choose_dt(bus(length="1 mm"), RISE) == near(1.25e-9 / 32, rel=1e-14)
+    assert lm.choose_dt(bus(length="1 mm"), RISE) == near(1.25e-9 / lm.STEPS_PER_RAMP, rel=1e-14)
 
 
 def test_choose_dt_takes_the_design_step():

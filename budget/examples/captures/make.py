@@ -29,6 +29,11 @@ DT_SCOPE = 20e-12       # scope sample interval [s]
 PRE_TRIGGER = 6e-9      # record start before the trigger [s]
 RECORD = 36e-9          # record length [s]
 T_STOP = 40e-9          # simulated window [s] (longer than the record after the ramp start)
+# The engine's time steps [s] the demo data were made with (the automatic steps of their
+# designs at the time: 32 per ramp, 16 per package L-C period), fixed so the files stay
+# reproduced byte for byte whatever the automatic step becomes.
+DT_UNITS = 1.5209170034901045e-11
+DT_TDR = 1.3671875e-12
 
 
 def unit_design(values):
@@ -66,7 +71,7 @@ def write_0042_rise(out):
     import budget
 
     rng = np.random.default_rng(42)
-    w = budget.simulate(unit_design(UNIT_0042), "CTRL", "rise", t_stop=T_STOP)
+    w = budget.simulate(unit_design(UNIT_0042), "CTRL", "rise", t_stop=T_STOP, dt=DT_UNITS)
     t = record_grid(rng)
     # trigger on CH1 (CTRL) rising through 1.25 V: the ramp started that long before t = 0
     t0 = -trigger_time(w, "CTRL", 1.25)
@@ -87,7 +92,7 @@ def write_0042_fall(out):
     import budget
 
     rng = np.random.default_rng(4242)
-    w = budget.simulate(unit_design(UNIT_0042), "CTRL", "fall", t_stop=T_STOP)
+    w = budget.simulate(unit_design(UNIT_0042), "CTRL", "fall", t_stop=T_STOP, dt=DT_UNITS)
     t = record_grid(rng)
     # an external trigger 0.7 ns after the ramp start
     t0 = -0.7e-9
@@ -105,7 +110,7 @@ def write_0117_rise(out):
     import budget
 
     rng = np.random.default_rng(117)
-    w = budget.simulate(unit_design(UNIT_0117), "CTRL", "rise", t_stop=T_STOP)
+    w = budget.simulate(unit_design(UNIT_0117), "CTRL", "rise", t_stop=T_STOP, dt=DT_UNITS)
     t = record_grid(rng)
     t0 = 1.9e-9  # the trigger fired 1.9 ns before the ramp started (a trigger from the test sequencer)
     ch = [scope_trace(w, tap, t, t0, rng, 0.007, off) for tap, off in (("MEM1", 0.005), ("MEM3", 0.002))]
@@ -139,7 +144,7 @@ def write_tdr(out):
 
     rng = np.random.default_rng(7)
     d = budget.loads(tdr_design_text())
-    w = budget.simulate(d, "PORT", "rise", t_stop=1.2e-9)
+    w = budget.simulate(d, "PORT", "rise", t_stop=1.2e-9, dt=DT_TDR)
     dt = 2.0e-12
     t = -0.2e-9 + dt * np.arange(int(1.4e-9 / dt))
     v = np.interp(t - 0.1e-9, w.t, w["PORT"], left=w["PORT"][0], right=w["PORT"][-1])

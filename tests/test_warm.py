@@ -1,0 +1,101 @@
+"""`busbudget warm` and the content-keyed kernel cache (budget/warm.py, budget/jit.py)."""
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from budget import jit
+from budget.cli import main
+
+ROOT = Path(__file__).resolve().parent.parent
+
+# Kernels the package calls with more than one argument-type signature, and why.
+#   run_block: the lane count is a compile-time constant for a single simulation ((0,): one
+#   lane, the loops fully unrolled) and a run-time one for a block of variants (()).
+MULTI_SIGNATURE = {"kernels.transient.run_block": 2}
+
+
+def test_warm_compiles_or_loads_every_entry_kernel_once(capsys):
+    assert main(["warm", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["schema"] == "busbudget.warm/1"
+    kernels = {k["name"]: k for k in doc["kernels"]}
+    # the entry points of the commands, the sweeps and the C library are all reached
+    for name in ("kernels.transient.run_block", "kernels.evaluate.evaluate_chunk", "kernels.metrics.edge_metrics",
+                 "kernels.metrics.edge_metrics_hyst", "kernels.metrics.ref_times", "kernels.metrics.headroom_terms",
+                 "kernels.metrics.moving_average", "kernels.metrics.first_peak_time", "tdr.peel_layers"):
+        assert kernels[name]["signatures"] >= 1, name
+    # fewer specialisations: one signature per kernel unless listed (this process ran other tests too)
+    for name, k in kernels.items():
+        assert k["signatures"] <= MULTI_SIGNATURE.get(name, 1), f"{name}: {k['signatures']} signatures"
+    assert all(Path(f).name.startswith(jit.CACHE_PREFIX) for f in doc["cache_folders"])
+
+
+def test_cache_folder_is_named_after_the_kernel_sources():
+    from budget.kernels import transient
+    from budget import tdr
+
+    files = jit.kernel_sources(transient.__file__)
+    assert Path(jit.__file__).resolve() in files
+    assert {f.name for f in files} >= {"transient.py", "metrics.py", "evaluate.py", "inputs.py", "jit.py"}
+    assert {f.name for f in jit.kernel_sources(tdr.__file__)} == {"jit.py", "tdr.py"}
+    digest = jit.sources_digest(transient.__file__)
+    assert transient.run_block.stats.cache_path.endswith(jit.CACHE_PREFIX + digest[:20])
+
+
+def _run(code: str, cwd: Path, cache: Path) -> dict:
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "NUMBA_CACHE_DIR")}
+    env.update(NUMBA_CACHE_DIR=str(cache), PYTHONPATH=str(cwd))
+    proc = subprocess.run([sys.executable, "-c", code], cwd=cwd, env=env, capture_output=True, text=True,
+                          timeout=1800)
+    assert proc.returncode == 0, proc.stderr
+    return json.loads(proc.stdout.strip().splitlines()[-1])
+
+
+WARM = "import json; from budget.warm import warm; print(json.dumps(warm(jobs={jobs}).to_json()))"
+
+MISSES_AFTER_CHECKS = """
+import json, budget
+from budget.warm import kernel_dispatchers
+for name in budget.EXAMPLES:
+    budget.check(budget.example(name))
+d = kernel_dispatchers()
+print(json.dumps({"misses": sum(sum(k.stats.cache_misses.values()) for k in d.values()),
+                  "hits": sum(sum(k.stats.cache_hits.values()) for k in d.values())}))
+"""
+
+EDITED = """
+import json, numpy as np
+from budget.metrics import smooth
+from budget.kernels import metrics as mk
+smooth(np.arange(10.0), np.ones(10), 2.0)
+print(json.dumps({"misses": sum(mk.moving_average.stats.cache_misses.values()),
+                  "hits": sum(mk.moving_average.stats.cache_hits.values())}))
+"""
+
+
+@pytest.mark.slow
+def test_cache_survives_a_move_and_is_dropped_when_a_kernel_source_changes(tmp_path):
+    """A cold warm-up fills the cache; a copy of the package at another path (an upgrade with the
+    same kernel sources: new path, new modification times) compiles nothing, and a budget check of
+    every bundled example finds every kernel in the cache; an edited kernel source compiles anew."""
+    cache = tmp_path / "cache"
+    first, second = tmp_path / "v1", tmp_path / "v2"
+    for dst in (first, second):
+        shutil.copytree(ROOT / "budget", dst / "budget", ignore=shutil.ignore_patterns("__pycache__"))
+    cold = _run(WARM.format(jobs=2), first, cache)          # with the helper process
+    assert cold["compiled"] > 0 and cold["helper_compiled"] > 0
+    again = _run(WARM.format(jobs=1), second, cache)
+    assert again["compiled"] == 0 and again["loaded"] > 0
+    checks = _run(MISSES_AFTER_CHECKS, second, cache)
+    assert checks["misses"] == 0 and checks["hits"] > 0
+    src = second / "budget" / "kernels" / "evaluate.py"     # not the edited kernel's own file
+    src.write_text(src.read_text() + "\n# edited\n")
+    edited = _run(EDITED, second, cache)
+    assert edited["misses"] == 1 and edited["hits"] == 0
