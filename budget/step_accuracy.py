@@ -73,13 +73,10 @@ def estimate_drivers(design) -> list:
 
 def _run(flatten, env, driver, edge, dt):
     from .kernels import transient as tk
+    from .simulate import run_netlist   # the linear or, with IBIS buffers, the non-linear kernel
 
     net = flatten(env, driver, edge, dt=dt, envelope=env)
-    n = net.n_variants
-    waves = np.empty((net.n_steps, net.topology.out_node.shape[0], n))
-    dc = np.empty((2, net.topology.n_nodes, n))
-    status = np.zeros(n, dtype=np.int64)
-    tk.run_block(0, n, (0,) if n == 1 else (), net.topology, net.values, waves, dc, status)
+    waves, dc, status = run_netlist(net)
     if np.any(status != tk.STATUS_OK) or not np.all(np.isfinite(waves)):
         return None
     swing = np.abs(dc[1, net.out_node] - dc[0, net.out_node])       # [taps, variants]
