@@ -73,7 +73,7 @@ def estimate_drivers(design) -> list:
 
 def _run(flatten, env, driver, edge, dt):
     from .kernels import transient as tk
-    from .simulate import run_netlist   # the linear or, with IBIS buffers, the non-linear kernel
+    from .run_blocks import run_netlist   # the linear or, with IBIS buffers, the non-linear kernel
 
     net = flatten(env, driver, edge, dt=dt, envelope=env)
     waves, dc, status = run_netlist(net)
