@@ -29,6 +29,15 @@ def _parts(design: Design) -> dict:
         if p.ref_load is not None:
             t = f"parts.{name}.ref_load"
             ref = RefLoad(r=p.ref_load.r, v=design.params.get(f"{t}.v"), c=design.params.get(f"{t}.c"))
+        if p.ibis is not None:      # a part from an IBIS file: the same file, model and corner again
+            from .ibis_parts import OVERRIDABLE, IbisRef
+
+            kw = {k: getattr(p, k) for k in OVERRIDABLE if k in keys}
+            corner = {-1.0: "min", 0.0: "typ", 1.0: "max"}[float(design.params[f"parts.{name}.ibis.corner"])]
+            ibis = IbisRef(file=p.ibis.path, component=p.ibis.component, model=p.ibis.model_name, corner=corner,
+                           pin=p.ibis.pin, switching=p.ibis.switching)
+            out[name] = Part(role=p.role if "role" in keys else None, ref_load=ref, ibis=ibis, **kw)
+            continue
         out[name] = Part(role=p.role, c_pin=p.c_pin, ref_load=ref, **kw)
     return out
 
@@ -37,7 +46,9 @@ def _lines(design: Design) -> dict:
     out = {}
     for name, ln in design.lines.items():
         r_dc = design.params.get(f"lines.{name}.r_dc")
-        if design.delay_keys[name] == "delay":
+        if design.delay_keys[name] == "geometry":
+            out[name] = LineType(geometry=ln.geometry, r_dc=r_dc)
+        elif design.delay_keys[name] == "delay":
             out[name] = LineType(z0=ln.z0, delay=ln.delay, r_dc=r_dc)
         else:
             out[name] = LineType(z0=ln.z0, er_eff=ln.er_eff, r_dc=r_dc)

@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parent.parent
 # Kernels the package calls with more than one argument-type signature, and why.
 #   run_block: the lane count is a compile-time constant for a single simulation ((0,): one
 #   lane, the loops fully unrolled) and a run-time one for a block of variants (()).
-MULTI_SIGNATURE = {"kernels.transient.run_block": 2}
+MULTI_SIGNATURE = {"kernels.transient.run_block": 2, "kernels.nonlinear.run_block_nl": 2}   # one lane / a block
 
 
 def test_warm_compiles_or_loads_every_entry_kernel_once(capsys):
