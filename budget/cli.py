@@ -89,13 +89,15 @@ def _progress(args):
 
 def _run_check(args, design):
     from .check import check
+    from .limits import MAX_WORK
 
     bar = _progress(args)
     try:
         return check(design, corners=True if args.corners else None, nominal=args.nominal,
                      monte_carlo=args.monte_carlo, seed=args.seed,
                      search=args.search, progress=bar, distribution=args.distribution,
-                     max_corners=args.max_corners, search_generations=args.search_generations)
+                     max_corners=args.max_corners, search_generations=args.search_generations,
+                     max_work=None if args.allow_long else MAX_WORK)
     finally:
         if bar is not None:
             bar.close()
@@ -574,6 +576,9 @@ def _analysis_options(parser) -> None:
                         help=f"most generations of the search (default {SEARCH_GENERATIONS})")
     parser.add_argument("--max-corners", type=_positive, default=MAX_CORNERS, metavar="N",
                         help=f"refuse more corners than this (default {MAX_CORNERS})")
+    parser.add_argument("--allow-long", action="store_true",
+                        help="run a check whose estimated work (simulations x steps x nodes) is above the limit "
+                             "budget.limits.MAX_WORK (refused otherwise, before any simulation)")
     parser.add_argument("--no-progress", action="store_true", help="no progress bar even on a terminal")
 
 

@@ -48,6 +48,22 @@ def _many_taps(n):
     return head + segs + taps + '[tolerances]\n"lines.l.z0" = "10%"\n"parts.dst.c_pin" = "10%"\n'
 
 
+def _many_transceivers(n):
+    """A fictional bus of n transceivers with 1 cm stubs on a trunk, four toleranced values (16 corners):
+    ``check --corners`` would be 17 variants x n drivers x 2 edges of about 2e4 steps x 3n nodes."""
+    head = ROBUST.split("[parts.src]")[0]
+    part = ('[parts.x]\nrole = "transceiver"\nv_high = "3.3 V"\nv_low = "0 V"\nr_high = "30 ohm"\n'
+            'r_low = "30 ohm"\nc_pin = "4 pF"\nl_pkg = "3 nH"\nvih = "2 V"\nvil = "0.8 V"\n\n'
+            '[lines.t]\nz0 = "60 ohm"\ndelay = "6.5 ns/m"\n\n')
+    segs = "".join(f'[[segment]]\nfrom = "n{i}"\nto = "n{i + 1}"\nline = "t"\nlength = "1 cm"\n\n'
+                   for i in range(n - 1))
+    taps = "".join(f'[[tap]]\nname = "U{i}"\nnode = "n{i}"\npart = "x"\nstub = {{ line = "t", length = "1 cm" }}\n\n'
+                   for i in range(n))
+    tol = ('[tolerances]\n"lines.t.z0" = "10%"\n"parts.x.c_pin" = "20%"\n"parts.x.r_high" = "10%"\n'
+           '"parts.x.r_low" = "10%"\n')
+    return head + part + segs + taps + tol
+
+
 # id -> (design text or None, argv after the design path, fragments every message must contain)
 CLI_ROWS = {
     "toml-integer-too-big": (_replace('delay = "6.7 ns/m"', "er_eff = 1" + "0" * 400), ["check"],
@@ -75,6 +91,9 @@ CLI_ROWS = {
     "capture-is-a-device": (ROBUST, ["judge", "--capture", "/dev/zero", "--driver", "TX", "--edge", "rise"],
                             ["/dev/zero", "not a regular file"]),
     "thousand-taps-corners": (_many_taps(1000), ["check", "--corners"], ["taps", "at most"]),
+    # 5.6e11 node-steps: tens of minutes if it ran; refused up front (tests/test_work_bound.py shows no simulation starts)
+    "transceivers-corners-too-much-work": (_many_transceivers(512), ["check", "--corners"],
+                                           ["node-steps", "MAX_WORK", "--nominal", "--monte-carlo N", "--allow-long"]),
 }
 
 
