@@ -252,6 +252,7 @@ LOADER_ROWS = {
     "tap-name-control": (_replace('name = "RX"', 'name = "R\\tX"'), "name"),
     "tap-name-20k-characters": (_replace('name = "RX"', 'name = "' + "R" * 20_000 + '"'), "MAX_NAME_CHARS"),
     "key-20k-characters": (_replace("[bus]\n", '[bus]\n"' + "k" * 20_000 + '" = 1\n'), "characters"),
+    "termination-type-a-table": (_replace('type = "series"', 'type = { a = 1 }'), "[termination #1] type"),
     "tolerance-path-20k-characters": (_replace('"lines.l.z0" = "10%"', '"' + "x" * 20_000 + '" = "10%"'),
                                       "tolerances"),
 }
@@ -287,6 +288,7 @@ def test_limits_are_stated_in_one_module():
 C_OPEN_ROWS = {
     "c-design-integer-too-big": _replace('delay = "6.7 ns/m"', "er_eff = 1" + "0" * 400),
     "c-design-deep-nesting": ROBUST + "\n[budget.extra]\nx = " + "[" * 50_000 + "]" * 50_000 + "\n",
+    "c-design-termination-type-a-table": _replace('type = "series"', 'type = { a = 1 }'),   # was BB_ERR_INTERNAL
 }
 
 
