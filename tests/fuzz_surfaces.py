@@ -345,6 +345,12 @@ def cli_cases(draw):
         elif opt == "--set":
             val = draw(st.builds(lambda p, v: f"{p}={v}", st.sampled_from(_param_paths(SEEDS[0]) + ["x.y", "", "bus.name"]),
                                  quantity_texts()))
+        elif opt == "--design":
+            val = draw(st.sampled_from(["@design", "@design", "example:short-bus", "@missing", "@capture"]))
+        elif opt == "--port":
+            val = draw(st.sampled_from(["TX", "RX", "near", "far", "U1", "CTRL", "", "nobody"]))
+        elif opt == "--values-out":
+            val = draw(st.sampled_from(["@out", "-", "@dir", "@missing-dir/x"]))
         elif opt in ("--driver", "--receiver"):
             val = draw(st.sampled_from(["TX", "RX", "U1", "U4", "", "nobody"]))
         elif opt == "--channel":
