@@ -44,7 +44,7 @@ from .analyses import (DEFAULT_MAX_SIMULATIONS, DISTRIBUTIONS, MAX_CORNERS, Wors
                        default_corners, out_of_box, sample_values, varied_paths, wilson_interval)
 from .analyses import search as search_box
 from .errors import ArgumentError, DesignError
-from .limits import MAX_MONTE_CARLO
+from .limits import MAX_MONTE_CARLO, MAX_WORK
 from .kernels import metrics as mk
 from .model import Design
 from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, assumptions_for, result_row, worst_summary
@@ -91,6 +91,34 @@ def _non_physical(exc: DesignError, what: str) -> DesignError:
                        source=exc.source, table="tolerances", key=key)
 
 
+def _refuse_long(design: Design, total: int, n_corners: int, monte_carlo: int, search: bool, max_work) -> None:
+    """ArgumentError naming the estimate, the limit and the ways out when the check's work exceeds ``max_work``."""
+    from .workload import estimate_work
+
+    work = estimate_work(design, total)
+    if work.node_steps <= max_work:
+        return
+    fits = int(max_work // (work.node_steps / total))    # variants (nominal included) within the limit
+    ways = []
+    if fits >= 1:
+        ways.append("--nominal (the nominal design alone)")
+    else:
+        ways.append("a shorter window or a longer step ([bus] t_stop, dt): even the nominal design is above it")
+    if n_corners and fits >= 2:
+        ways.append(f"--monte-carlo N with N at most {fits - 1:,} instead of all {n_corners:,} corners")
+    if n_corners:
+        ways.append("fewer corners (fewer toleranced values in [tolerances])")
+    if monte_carlo and fits >= 2:
+        ways.append(f"at most {fits - 1:,} Monte Carlo samples instead of {monte_carlo:,}")
+    if search:
+        ways.append("a shorter search (--search-generations) or none")
+    ways.append("--allow-long to run it anyway (max_work=None from Python; a progress bar is shown on a terminal)")
+    limit_name = "budget.limits.MAX_WORK" if max_work == MAX_WORK else "max_work"
+    raise ArgumentError(f"{design.source}: this check would take {work.describe()}, above the limit of "
+                        f"{max_work:.3g} node-steps ({limit_name}; about 2e8 to 3e8 node-steps per second on a "
+                        f"2-core machine); ways out: " + "; ".join(ways))
+
+
 def _coverage(design: Design, plan: dict, n_corners: int, monte_carlo: int, n_search: int, nominal: bool,
               corners_asked) -> dict:
     """The ``coverage`` entry of the report: what was evaluated, in numbers and in words."""
@@ -127,7 +155,7 @@ def _coverage(design: Design, plan: dict, n_corners: int, monte_carlo: int, n_se
 def check(design: Design, *, corners: bool | None = None, nominal: bool = False, monte_carlo: int = 0,
           seed: int | None = None, search: bool = False, progress: Callable[[int, int], None] | None = None,
           distribution: str = "uniform", max_corners: int = MAX_CORNERS,
-          search_generations: int = SEARCH_GENERATIONS) -> CheckReport:
+          search_generations: int = SEARCH_GENERATIONS, max_work: float | None = MAX_WORK) -> CheckReport:
     """Check every driver x receiver x edge of ``design`` against its noise budget.
 
     Parameters
@@ -160,6 +188,10 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
         Largest corner count accepted.
     search_generations : int
         Most generations of the search (each one sweep of the population).
+    max_work : float or None [node-steps]
+        Refuse the check (ArgumentError, before any simulation) when its estimated
+        work (simulations x time steps x netlist nodes, :func:`budget.workload.estimate_work`)
+        is above this; default :data:`budget.limits.MAX_WORK`; None allows any length.
 
     Returns
     -------
@@ -186,6 +218,10 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
         raise ArgumentError(f"max_corners must be a positive integer, got {max_corners!r}")
     if not isinstance(search_generations, (int, np.integer)) or search_generations < 1:
         raise ArgumentError(f"search_generations must be a positive integer, got {search_generations!r}")
+    if max_work is not None and (isinstance(max_work, bool) or not isinstance(max_work, (int, float, np.integer,
+                                                                                        np.floating))
+                                 or not max_work > 0):
+        raise ArgumentError(f"max_work must be a positive number of node-steps or None, got {max_work!r}")
     if progress is not None and not callable(progress):
         raise ArgumentError("progress must be a callable(done, total) or None")
     if nominal and (corners or monte_carlo > 0 or search):
@@ -215,6 +251,8 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
     k = len(paths)
     pop = max(8, 4 * k)
     total = 1 + n_corners + monte_carlo + (pop * (search_generations + 1) if search else 0)
+    if max_work is not None:
+        _refuse_long(design, total, n_corners, monte_carlo, search, max_work)
     ev = _Evaluator(design, progress, total)
     shape = (len(drivers), 2, len(receivers))
     trackers = []

@@ -89,13 +89,15 @@ def _progress(args):
 
 def _run_check(args, design):
     from .check import check
+    from .limits import MAX_WORK
 
     bar = _progress(args)
     try:
         return check(design, corners=True if args.corners else None, nominal=args.nominal,
                      monte_carlo=args.monte_carlo, seed=args.seed,
                      search=args.search, progress=bar, distribution=args.distribution,
-                     max_corners=args.max_corners, search_generations=args.search_generations)
+                     max_corners=args.max_corners, search_generations=args.search_generations,
+                     max_work=None if args.allow_long else MAX_WORK)
     finally:
         if bar is not None:
             bar.close()
@@ -238,11 +240,34 @@ def cmd_tdr(args) -> int:
     prof = tdr_profile(cap.t, cap[name], source_r=args.source_r, emf=args.emf,
                        ramp=None if args.rise is None else args.rise / 0.8, t0=args.t0, cell=args.cell,
                        delay=args.delay, er_eff=args.er_eff, source=cap.source)
+    doc, text = prof.to_json(), prof.text()
+    if args.design is not None or args.port is not None or args.values_out is not None:
+        text, doc = _tdr_values(args, prof, text, doc)
+        if doc is None:   # --values-out -: the values file was the output
+            return EXIT_PASS
     if args.json:
-        sys.stdout.write(json.dumps(prof.to_json(), indent=2, allow_nan=False) + "\n")
+        sys.stdout.write(json.dumps(doc, indent=2, allow_nan=False) + "\n")
     else:
-        sys.stdout.write(prof.text())
+        sys.stdout.write(text)
     return EXIT_PASS
+
+
+def _tdr_values(args, prof, text, doc):
+    """tdr --design/--port/--values-out: the profile assigned to the design's line pieces (budget.tdr_values)."""
+    from .tdr_values import assign_profile
+
+    if args.design is None or args.port is None:
+        raise InputError("tdr: --design and --port go together (and --values-out needs both)")
+    design = load_design(args.design)
+    a = assign_profile(design, prof, args.port, match=args.match, source=str(args.file))
+    if args.values_out is not None:
+        body = a.values_toml(f"design {args.design}, capture {args.file}")
+        if args.values_out == "-":
+            sys.stdout.write(body)
+            return None, None
+        write_atomically(args.values_out, lambda fh: fh.write(body))
+        print(f"wrote {len(a.values)} value(s) to {args.values_out}", file=sys.stderr)
+    return text + a.text(), dict(doc, design_values=a.to_json())
 
 
 # ---------------------------------------------------------------------------
@@ -623,6 +648,9 @@ def _analysis_options(parser) -> None:
                         help=f"most generations of the search (default {SEARCH_GENERATIONS})")
     parser.add_argument("--max-corners", type=_positive, default=MAX_CORNERS, metavar="N",
                         help=f"refuse more corners than this (default {MAX_CORNERS})")
+    parser.add_argument("--allow-long", action="store_true",
+                        help="run a check whose estimated work (simulations x steps x nodes) is above the limit "
+                             "budget.limits.MAX_WORK (refused otherwise, before any simulation)")
     parser.add_argument("--no-progress", action="store_true", help="no progress bar even on a terminal")
 
 
@@ -775,6 +803,16 @@ def build_parser() -> argparse.ArgumentParser:
     td.add_argument("--cell", metavar="T", type=_seconds,
                     help="round-trip resolution, at least the edge's 0-100 %% duration (default: that duration)")
     td.add_argument("--json", action="store_true", help="one JSON document (schema busbudget.tdr/1)")
+    td.add_argument("--design", metavar="DESIGN", default=None,
+                    help="design file (or example:NAME) whose line segments the profile is assigned to; needs --port")
+    td.add_argument("--port", metavar="TAP|NODE", default=None,
+                    help="where the TDR port sits: a tap (its stub first) or an end node of the bus")
+    td.add_argument("--match", choices=("delay", "order"), default="delay",
+                    help="which profile span belongs to which segment: by the design's delays (default) or the "
+                         "profile's segments in order from the port")
+    td.add_argument("--values-out", metavar="FILE", default=None,
+                    help="write the measured lines.NAME.z0 values as a values file (TOML, for --values); '-' for "
+                         "standard output (then nothing else is printed)")
     td.set_defaults(func=cmd_tdr)
 
     ln = sub.add_parser(

@@ -208,9 +208,10 @@ def _arguments(doc: dict, source: str) -> dict:
         t = f"termination #{i + 1}"
         tm = r.table(tm, t)
         typ = tm.get("type")
-        if typ in TERM_KEYS:
+        known = isinstance(typ, str) and typ in TERM_KEYS   # a table or an array here is no type name
+        if known:
             r.known(tm, f"termination.{typ}", t)
-        terminations.append(Termination(**tm) if typ in TERM_KEYS else Termination(typ))
+        terminations.append(Termination(**tm) if known else Termination(typ))
 
     b = r.table(doc.get("budget", {}), "budget")
     r.known(b, "budget", "budget")

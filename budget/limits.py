@@ -23,6 +23,12 @@ MAX_BLOCK_VALUES = 64 * 1024 * 1024
     512 MiB of float64: refused before allocation rather than failing inside the kernel.
 MAX_MONTE_CARLO = 1_000_000
     Random variants of one ``check --monte-carlo`` run.
+MAX_WORK = 100_000_000_000
+    Work of one ``check`` in node-steps: simulations x time steps x netlist nodes,
+    estimated before the first simulation (:mod:`budget.workload`).  Measured on the
+    project's shared 2-core machine: 2.1e8 to 3.0e8 node-steps per second over the
+    bundled designs, so the limit is roughly 6 to 8 minutes there.  A larger check is
+    refused unless long runs are allowed (``check --allow-long``, ``max_work=None``).
 MAX_BATCH_VARIANTS = 10_000_000
     Variants of one ``bb_batch`` call from C (n_variants x n_paths doubles read from the
     caller's buffer): a count beyond it is a caller's bug, refused with BB_ERR_SIZE
@@ -42,6 +48,7 @@ MAX_NODES = 8192
 MAX_STEPS = 5_000_000
 MAX_BLOCK_VALUES = 64 * 1024 * 1024
 MAX_MONTE_CARLO = 1_000_000
+MAX_WORK = 100_000_000_000
 MAX_BATCH_VARIANTS = 10_000_000
 MAX_NAME_CHARS = 256
 MAX_NAMES_LISTED = 12

@@ -49,6 +49,22 @@ def _many_taps(n):
     return head + segs + taps + '[tolerances]\n"lines.l.z0" = "10%"\n"parts.dst.c_pin" = "10%"\n'
 
 
+def _many_transceivers(n):
+    """A fictional bus of n transceivers with 1 cm stubs on a trunk, four toleranced values (16 corners):
+    ``check --corners`` would be 17 variants x n drivers x 2 edges of about 2e4 steps x 3n nodes."""
+    head = ROBUST.split("[parts.src]")[0]
+    part = ('[parts.x]\nrole = "transceiver"\nv_high = "3.3 V"\nv_low = "0 V"\nr_high = "30 ohm"\n'
+            'r_low = "30 ohm"\nc_pin = "4 pF"\nl_pkg = "3 nH"\nvih = "2 V"\nvil = "0.8 V"\n\n'
+            '[lines.t]\nz0 = "60 ohm"\ndelay = "6.5 ns/m"\n\n')
+    segs = "".join(f'[[segment]]\nfrom = "n{i}"\nto = "n{i + 1}"\nline = "t"\nlength = "1 cm"\n\n'
+                   for i in range(n - 1))
+    taps = "".join(f'[[tap]]\nname = "U{i}"\nnode = "n{i}"\npart = "x"\nstub = {{ line = "t", length = "1 cm" }}\n\n'
+                   for i in range(n))
+    tol = ('[tolerances]\n"lines.t.z0" = "10%"\n"parts.x.c_pin" = "20%"\n"parts.x.r_high" = "10%"\n'
+           '"parts.x.r_low" = "10%"\n')
+    return head + part + segs + taps + tol
+
+
 # id -> (design text or None, argv after the design path, fragments every message must contain)
 CLI_ROWS = {
     "toml-integer-too-big": (_replace('delay = "6.7 ns/m"', "er_eff = 1" + "0" * 400), ["check"],
@@ -106,6 +122,9 @@ CLI_ROWS = {
     "ibis-corner-between": (_replace("[parts.dst]", f'[parts.ib]\nibis = {{ file = "{SHIPPED_IBIS}", '
                                      'model = "tsx33_io" }\n\n[parts.dst]'),
                             ["check", "--set", "parts.ib.ibis.corner=0.5"], ["parts.ib.ibis.corner", "IBIS corner"]),
+    # 5.6e11 node-steps: tens of minutes if it ran; refused up front (tests/test_work_bound.py shows no simulation starts)
+    "transceivers-corners-too-much-work": (_many_transceivers(512), ["check", "--corners"],
+                                           ["node-steps", "MAX_WORK", "--nominal", "--monte-carlo N", "--allow-long"]),
 }
 
 
@@ -264,6 +283,7 @@ LOADER_ROWS = {
     "tap-name-control": (_replace('name = "RX"', 'name = "R\\tX"'), "name"),
     "tap-name-20k-characters": (_replace('name = "RX"', 'name = "' + "R" * 20_000 + '"'), "MAX_NAME_CHARS"),
     "key-20k-characters": (_replace("[bus]\n", '[bus]\n"' + "k" * 20_000 + '" = 1\n'), "characters"),
+    "termination-type-a-table": (_replace('type = "series"', 'type = { a = 1 }'), "[termination #1] type"),
     "tolerance-path-20k-characters": (_replace('"lines.l.z0" = "10%"', '"' + "x" * 20_000 + '" = "10%"'),
                                       "tolerances"),
 }
@@ -299,6 +319,7 @@ def test_limits_are_stated_in_one_module():
 C_OPEN_ROWS = {
     "c-design-integer-too-big": _replace('delay = "6.7 ns/m"', "er_eff = 1" + "0" * 400),
     "c-design-deep-nesting": ROBUST + "\n[budget.extra]\nx = " + "[" * 50_000 + "]" * 50_000 + "\n",
+    "c-design-termination-type-a-table": _replace('type = "series"', 'type = { a = 1 }'),   # was BB_ERR_INTERNAL
 }
 
 
