@@ -124,7 +124,7 @@ CLI_ROWS = {
                             ["check", "--set", "parts.ib.ibis.corner=0.5"], ["parts.ib.ibis.corner", "IBIS corner"]),
     # 5.6e11 node-steps: tens of minutes if it ran; refused up front (tests/test_work_bound.py shows no simulation starts)
     "transceivers-corners-too-much-work": (_many_transceivers(512), ["check", "--corners"],
-                                           ["node-steps", "MAX_WORK", "--nominal", "--monte-carlo N", "--allow-long"]),
+                                           ["node-steps", "MAX_WORK", "--nominal", "--allow-long"]),
 }
 
 
