@@ -44,7 +44,7 @@ from .analyses import (DEFAULT_MAX_SIMULATIONS, DISTRIBUTIONS, MAX_CORNERS, Wors
                        default_corners, out_of_box, sample_values, varied_paths, wilson_interval)
 from .analyses import search as search_box
 from .errors import ArgumentError, DesignError
-from .limits import MAX_MONTE_CARLO, MAX_WORK
+from .limits import MAX_MONTE_CARLO, MAX_WORK, STEP_ESTIMATE_WORK
 from .kernels import metrics as mk
 from .model import Design
 from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, assumptions_for, result_row, worst_summary
@@ -95,26 +95,33 @@ def _refuse_long(design: Design, total: int, n_corners: int, monte_carlo: int, s
     """ArgumentError naming the estimate, the limit and the ways out when the check's work exceeds ``max_work``."""
     from .workload import estimate_work
 
-    work = estimate_work(design, total)
-    if work.node_steps <= max_work:
-        return
+    # the lower bound first (no simulation); the step's accuracy estimate (a few simulations of
+    # the envelope) runs only when one variant is cheap, so a huge bus is refused at once
+    work = estimate_work(design, total, largest_step=True)
+    exact = work.node_steps <= max_work or work.node_steps / total <= STEP_ESTIMATE_WORK
+    if exact:
+        work = estimate_work(design, total)
+        if work.node_steps <= max_work:
+            return
     fits = int(max_work // (work.node_steps / total))    # variants (nominal included) within the limit
+    bound = "" if exact else " (an upper bound: the step chosen for accuracy may be finer)"
     ways = []
     if fits >= 1:
         ways.append("--nominal (the nominal design alone)")
     else:
         ways.append("a shorter window or a longer step ([bus] t_stop, dt): even the nominal design is above it")
     if n_corners and fits >= 2:
-        ways.append(f"--monte-carlo N with N at most {fits - 1:,} instead of all {n_corners:,} corners")
+        ways.append(f"--monte-carlo N with N at most {fits - 1:,}{bound} instead of all {n_corners:,} corners")
     if n_corners:
         ways.append("fewer corners (fewer toleranced values in [tolerances])")
     if monte_carlo and fits >= 2:
-        ways.append(f"at most {fits - 1:,} Monte Carlo samples instead of {monte_carlo:,}")
+        ways.append(f"at most {fits - 1:,} Monte Carlo samples{bound} instead of {monte_carlo:,}")
     if search:
         ways.append("a shorter search (--search-generations) or none")
     ways.append("--allow-long to run it anyway (max_work=None from Python; a progress bar is shown on a terminal)")
     limit_name = "budget.limits.MAX_WORK" if max_work == MAX_WORK else "max_work"
-    raise ArgumentError(f"{design.source}: this check would take {work.describe()}, above the limit of "
+    raise ArgumentError(f"{design.source}: this check would take {'' if exact else 'at least '}"
+                        f"{work.describe()}, above the limit of "
                         f"{max_work:.3g} node-steps ({limit_name}; about 2e8 to 3e8 node-steps per second on a "
                         f"2-core machine); ways out: " + "; ".join(ways))
 

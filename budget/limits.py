@@ -29,6 +29,12 @@ MAX_WORK = 100_000_000_000
     project's shared 2-core machine: 2.1e8 to 3.0e8 node-steps per second over the
     bundled designs, so the limit is roughly 6 to 8 minutes there.  A larger check is
     refused unless long runs are allowed (``check --allow-long``, ``max_work=None``).
+STEP_ESTIMATE_WORK = 1_000_000_000
+    Work of one variant at the largest step tried (a lower bound, found without
+    simulating) up to which the work bound also runs the step's accuracy estimate (a
+    few simulations of the tolerance envelope, seconds at most) to state the exact
+    work; above it a check already above ``MAX_WORK`` on the lower bound is refused
+    at once, and the counts in the message are upper bounds.
 MAX_BATCH_VARIANTS = 10_000_000
     Variants of one ``bb_batch`` call from C (n_variants x n_paths doubles read from the
     caller's buffer): a count beyond it is a caller's bug, refused with BB_ERR_SIZE
@@ -49,6 +55,7 @@ MAX_STEPS = 5_000_000
 MAX_BLOCK_VALUES = 64 * 1024 * 1024
 MAX_MONTE_CARLO = 1_000_000
 MAX_WORK = 100_000_000_000
+STEP_ESTIMATE_WORK = 1_000_000_000
 MAX_BATCH_VARIANTS = 10_000_000
 MAX_NAME_CHARS = 256
 MAX_NAMES_LISTED = 12

@@ -53,18 +53,31 @@ class WorkEstimate:
                 f"{len(self.steps)} edges; {per}) = {self.node_steps:.3g} node-steps")
 
 
-def estimate_work(design: Design, n_variants: int) -> WorkEstimate:
+def estimate_work(design: Design, n_variants: int, *, largest_step: bool = False) -> WorkEstimate:
     """Estimated work [node-steps] of evaluating ``n_variants`` variants of ``design`` for every driver and edge.
 
     Uses the step, window and netlist the sweep will use for the design's tolerance
     box (the values a check evaluates all lie inside it); flattening the nominal
     design once per edge is cheap next to a single simulation.
+
+    largest_step : bool
+        Use the largest step the accuracy estimate would try
+        (:func:`budget.line_model.choose_dt`) instead of the step it chooses.  The
+        chosen step is never larger, so this is a lower bound of the work, found
+        without a single simulation (the accuracy estimate simulates the envelope
+        design at a few steps, which on a large bus is itself long work).
     """
-    from .netlist import flatten
+    from .line_model import choose_dt
+    from .netlist import flatten, tolerance_envelope
     from .sweep import plan
 
     drivers = design.drivers
-    env, dts, tss = plan(design, {}, EDGES)
+    if largest_step:
+        env = tolerance_envelope(design, {})
+        _, _, tss = plan(design, {}, EDGES, dt=1.0)        # the window alone (dt given: no estimate runs)
+        dts = {e: choose_dt(env, e) for e in EDGES}
+    else:
+        env, dts, tss = plan(design, {}, EDGES)
     steps, nodes = {}, {}
     for e in EDGES:
         if drivers:
