@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 CAPTURES = Path(__file__).resolve().parent / "examples" / "captures"
+IBIS_BUS = Path(__file__).resolve().parent / "examples" / "ibis" / "tansy_bus.toml"
 
 
 def kernel_dispatchers() -> dict:
@@ -83,6 +84,20 @@ def _check():
     budget.check(budget.example("short-bus"))
 
 
+def _check_mirrored():
+    """A bus whose falling edge is the rising one's mirror: one transient for both edges."""
+    import budget
+    budget.check(budget.example("backplane"), nominal=True)
+
+
+def _check_ibis():
+    """A bus of IBIS buffers: the non-linear kernel, one lane and a block of lanes."""
+    import budget
+    d = budget.load(IBIS_BUS)
+    budget.check(d, nominal=True)
+    budget.simulate(d, d.drivers[0], "rise")
+
+
 def _waves():
     import budget
     budget.simulate(budget.example("short-bus"), "CTRL", "rise")
@@ -109,10 +124,12 @@ def _tdr():
 
 def workload() -> list:
     """(label, callable) of every step of the warm-up: the Python calls behind ``check`` (with tolerance
-    corners), ``waves``, ``plot`` (a batch of waveforms), ``judge``, ``correlate`` and ``tdr``, and the
+    corners, of a bus whose edges mirror and of IBIS buffers), ``waves``, ``plot`` (a batch of waveforms), ``judge``, ``correlate`` and ``tdr``, and the
     metric functions of the Python API."""
     return [
         ("check with tolerance corners", _check),
+        ("check of mirrored edges", _check_mirrored),
+        ("check of IBIS buffers", _check_ibis),
         ("waveforms of one edge", _waves),
         ("a batch of waveforms", _batch_waveforms),
         ("judge a capture", _judge),

@@ -17,8 +17,12 @@ ROOT = Path(__file__).resolve().parent.parent
 
 # Kernels the package calls with more than one argument-type signature, and why.
 #   run_block: the lane count is a compile-time constant for a single simulation ((0,): one
-#   lane, the loops fully unrolled) and a run-time one for a block of variants (()).
-MULTI_SIGNATURE = {"kernels.transient.run_block": 2, "kernels.nonlinear.run_block_nl": 2}   # one lane / a block
+#   lane, the loops fully unrolled) and a run-time one for a block of variants (()).  The same holds
+#   for the non-linear kernel run_block_nl and the helpers it passes lane-shaped arrays to (its
+#   Newton step, the device state coefficients, the DC operating point).
+MULTI_SIGNATURE = {"kernels.transient.run_block": 2, "kernels.nonlinear.run_block_nl": 2,     # one lane / a block
+                   "kernels.nonlinear._newton_clusters": 2, "kernels.nonlinear._state_coefficients": 2,
+                   "kernels.nonlinear.dc_state_nl": 2}
 
 
 def test_warm_compiles_or_loads_every_entry_kernel_once(capsys):
@@ -29,7 +33,9 @@ def test_warm_compiles_or_loads_every_entry_kernel_once(capsys):
     # the entry points of the commands, the sweeps and the C library are all reached
     for name in ("kernels.transient.run_block", "kernels.evaluate.evaluate_chunk", "kernels.metrics.edge_metrics",
                  "kernels.metrics.edge_metrics_hyst", "kernels.metrics.ref_times", "kernels.metrics.headroom_terms",
-                 "kernels.metrics.moving_average", "kernels.metrics.first_peak_time", "tdr.peel_layers"):
+                 "kernels.metrics.moving_average", "kernels.metrics.first_peak_time", "tdr.peel_layers",
+                 "kernels.evaluate.evaluate_chunk_both", "kernels.nonlinear.run_block_nl",
+                 "kernels.nonlinear.evaluate_chunk_nl"):
         assert kernels[name]["signatures"] >= 1, name
     # fewer specialisations: one signature per kernel unless listed (this process ran other tests too)
     for name, k in kernels.items():
@@ -62,9 +68,10 @@ WARM = "import json; from budget.warm import warm; print(json.dumps(warm(jobs={j
 
 MISSES_AFTER_CHECKS = """
 import json, budget
-from budget.warm import kernel_dispatchers
+from budget.warm import kernel_dispatchers, IBIS_BUS
 for name in budget.EXAMPLES:
     budget.check(budget.example(name))
+budget.check(budget.load(IBIS_BUS))
 d = kernel_dispatchers()
 print(json.dumps({"misses": sum(sum(k.stats.cache_misses.values()) for k in d.values()),
                   "hits": sum(sum(k.stats.cache_hits.values()) for k in d.values())}))
