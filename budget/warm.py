@@ -207,29 +207,38 @@ def _start_helper(labels):
                             stderr=subprocess.PIPE, text=True)
 
 
-def warm(log=None, jobs: int = 1) -> WarmReport:
+def warm(log=None, jobs: int = 1, steps=None) -> WarmReport:
     """Compile or load every kernel; ``log(message)`` is called before each step.
 
     jobs: processes that compile at once (1 or 2): with 2, a helper process compiles
     HELPER_STEPS while this one compiles the rest; then this process runs every step, now
-    loading what the helper compiled (the report counts both)."""
+    loading what the helper compiled (the report counts both).
+    steps: labels of :func:`workload` to run (default: all of them)."""
+    from .errors import ArgumentError
     if jobs not in (1, 2):
-        from .errors import ArgumentError
         raise ArgumentError(f"jobs must be 1 or 2, got {jobs!r}")
+    labels = [label for label, _ in workload()]
+    if steps is None:
+        steps = labels
+    unknown = [s for s in steps if s not in labels]
+    if unknown:
+        raise ArgumentError(f"unknown warm-up steps {unknown!r}; steps: {', '.join(labels)}")
+    chosen = [(label, fn) for label, fn in workload() if label in steps]
+    helper_steps = [label for label, _ in chosen if label in HELPER_STEPS]
     t0 = time.perf_counter()
     disp = kernel_dispatchers()
     helper, helper_compiled = None, 0
-    if jobs == 2:
-        helper = _start_helper(HELPER_STEPS)
-    steps = []
-    for label, fn in workload():
+    if jobs == 2 and helper_steps:
+        helper = _start_helper(helper_steps)
+    done = []
+    for label, fn in chosen:
         if helper is not None and label in HELPER_STEPS:
             continue
         if log:
             log(label)
         ts = time.perf_counter()
         fn()
-        steps.append((label, time.perf_counter() - ts))
+        done.append((label, time.perf_counter() - ts))
     if helper is not None:
         if log:
             log("waiting for the helper process")
@@ -238,11 +247,11 @@ def warm(log=None, jobs: int = 1) -> WarmReport:
             helper_compiled = int(out.strip().splitlines()[-1])
         elif log:
             log(f"helper process failed ({err.strip().splitlines()[-1:]}); compiling its steps here")
-        for label, fn in workload():
+        for label, fn in chosen:
             if label in HELPER_STEPS:
                 ts = time.perf_counter()
                 fn()
-                steps.append((label, time.perf_counter() - ts))
+                done.append((label, time.perf_counter() - ts))
     kernels, folders = [], []
     for name, d in sorted(disp.items()):
         st = d.stats
@@ -250,5 +259,5 @@ def warm(log=None, jobs: int = 1) -> WarmReport:
                         "compiled": sum(st.cache_misses.values()), "loaded": sum(st.cache_hits.values())})
         if st.cache_path and st.cache_path not in folders:
             folders.append(st.cache_path)
-    return WarmReport(cache_folders=folders, seconds=time.perf_counter() - t0, steps=steps, kernels=kernels,
+    return WarmReport(cache_folders=folders, seconds=time.perf_counter() - t0, steps=done, kernels=kernels,
                       helper_compiled=helper_compiled)

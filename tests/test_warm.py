@@ -19,10 +19,11 @@ ROOT = Path(__file__).resolve().parent.parent
 #   run_block: the lane count is a compile-time constant for a single simulation ((0,): one
 #   lane, the loops fully unrolled) and a run-time one for a block of variants (()).  The same holds
 #   for the non-linear kernel run_block_nl and the helpers it passes lane-shaped arrays to (its
-#   Newton step, the device state coefficients, the DC operating point).
+#   Newton step, the device state coefficients, the DC operating point, the line histories'
+#   interpolation weights).
 MULTI_SIGNATURE = {"kernels.transient.run_block": 2, "kernels.nonlinear.run_block_nl": 2,     # one lane / a block
                    "kernels.nonlinear._newton_clusters": 2, "kernels.nonlinear._state_coefficients": 2,
-                   "kernels.nonlinear.dc_state_nl": 2}
+                   "kernels.nonlinear.dc_state_nl": 2, "kernels.transient._lagrange_weights": 2}
 
 
 def test_warm_compiles_or_loads_every_entry_kernel_once(capsys):
@@ -55,27 +56,34 @@ def test_cache_folder_is_named_after_the_kernel_sources():
     assert transient.run_block.stats.cache_path.endswith(jit.CACHE_PREFIX + digest[:20])
 
 
-def _run(code: str, cwd: Path, cache: Path) -> dict:
-    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "NUMBA_CACHE_DIR")}
-    env.update(NUMBA_CACHE_DIR=str(cache), PYTHONPATH=str(cwd))
+def _run(code: str, cwd: Path, cache: Path | None) -> dict:
+    """Run ``code`` in a fresh interpreter on the package at ``cwd``, the kernel cache at ``cache``
+    (None: the cache this test run uses); its last output line is JSON."""
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH",) + (("NUMBA_CACHE_DIR",) if cache else ())}
+    env.update(PYTHONPATH=str(cwd))
+    if cache:
+        env.update(NUMBA_CACHE_DIR=str(cache))
     proc = subprocess.run([sys.executable, "-c", code], cwd=cwd, env=env, capture_output=True, text=True,
                           timeout=1800)
     assert proc.returncode == 0, proc.stderr
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
-WARM = "import json; from budget.warm import warm; print(json.dumps(warm(jobs={jobs}).to_json()))"
+# the production-line steps of the warm-up: few, quickly compiled kernels (the TDR peeling, the metrics)
+FEW = ("TDR profile", "metric functions")
+WARM = "import json; from budget.warm import warm; print(json.dumps(warm(jobs={jobs}, steps={steps!r}).to_json()))"
 
-MISSES_AFTER_CHECKS = """
+SIGNATURES = """
 import json, budget
 from budget.warm import kernel_dispatchers, IBIS_BUS
-for name in budget.EXAMPLES:
-    budget.check(budget.example(name))
-budget.check(budget.load(IBIS_BUS))
 d = kernel_dispatchers()
-print(json.dumps({"misses": sum(sum(k.stats.cache_misses.values()) for k in d.values()),
-                  "hits": sum(sum(k.stats.cache_hits.values()) for k in d.values())}))
+{work}
+print(json.dumps({{k: sorted(str(s) for s in v.signatures) for k, v in d.items()}}))
 """
+WARM_ALL = "from budget.warm import warm; warm(jobs=1)"
+CHECK_ALL = """for name in budget.EXAMPLES:
+    budget.check(budget.example(name))
+budget.check(budget.load(IBIS_BUS))"""
 
 EDITED = """
 import json, numpy as np
@@ -87,22 +95,37 @@ print(json.dumps({"misses": sum(mk.moving_average.stats.cache_misses.values()),
 """
 
 
-@pytest.mark.slow
+def test_warm_covers_every_kernel_signature_the_checks_use():
+    """Every (kernel, argument types) a budget check of every bundled example and of the IBIS demo
+    compiles is one ``busbudget warm`` compiles: after warm, those checks compile nothing."""
+    warmed = _run(SIGNATURES.format(work=WARM_ALL), ROOT, None)
+    checked = _run(SIGNATURES.format(work=CHECK_ALL), ROOT, None)
+    missing = {k: sorted(set(v) - set(warmed.get(k, []))) for k, v in checked.items()}
+    assert not {k: v for k, v in missing.items() if v}
+    assert sum(len(v) for v in checked.values()) > 0
+
+
 def test_cache_survives_a_move_and_is_dropped_when_a_kernel_source_changes(tmp_path):
-    """A cold warm-up fills the cache; a copy of the package at another path (an upgrade with the
-    same kernel sources: new path, new modification times) compiles nothing, and a budget check of
-    every bundled example finds every kernel in the cache; an edited kernel source compiles anew."""
+    """A cold warm-up (helper process) fills an empty cache; a copy of the package at another path
+    (an upgrade with the same kernel sources: new path, new modification times) compiles nothing;
+    an edited kernel source compiles anew."""
     cache = tmp_path / "cache"
     first, second = tmp_path / "v1", tmp_path / "v2"
     for dst in (first, second):
         shutil.copytree(ROOT / "budget", dst / "budget", ignore=shutil.ignore_patterns("__pycache__"))
-    cold = _run(WARM.format(jobs=2), first, cache)          # with the helper process
-    assert cold["compiled"] > 0 and cold["helper_compiled"] > 0
-    again = _run(WARM.format(jobs=1), second, cache)
+    cold = _run(WARM.format(jobs=2, steps=FEW), first, cache)     # the steps compiled by the helper process
+    assert cold["helper_compiled"] > 0 and cold["compiled"] == cold["helper_compiled"]   # then loaded here
+    again = _run(WARM.format(jobs=1, steps=FEW), second, cache)
     assert again["compiled"] == 0 and again["loaded"] > 0
-    checks = _run(MISSES_AFTER_CHECKS, second, cache)
-    assert checks["misses"] == 0 and checks["hits"] > 0
     src = second / "budget" / "kernels" / "evaluate.py"     # not the edited kernel's own file
     src.write_text(src.read_text() + "\n# edited\n")
     edited = _run(EDITED, second, cache)
     assert edited["misses"] == 1 and edited["hits"] == 0
+
+
+def test_warm_refuses_an_unknown_step():
+    from budget.errors import ArgumentError
+    from budget.warm import warm
+
+    with pytest.raises(ArgumentError, match="unknown warm-up steps"):
+        warm(steps=("check everything",))
