@@ -124,8 +124,8 @@ def _tdr():
 
 def workload() -> list:
     """(label, callable) of every step of the warm-up: the Python calls behind ``check`` (with tolerance
-    corners, of a bus whose edges mirror and of IBIS buffers), ``waves``, ``plot`` (a batch of waveforms), ``judge``, ``correlate`` and ``tdr``, and the
-    metric functions of the Python API."""
+    corners, of a bus whose edges mirror and of IBIS buffers), ``waves``, ``plot`` (a batch of
+    waveforms), ``judge``, ``correlate`` and ``tdr``, and the metric functions of the Python API."""
     return [
         ("check with tolerance corners", _check),
         ("check of mirrored edges", _check_mirrored),

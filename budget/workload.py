@@ -68,13 +68,12 @@ def estimate_work(design: Design, n_variants: int, *, largest_step: bool = False
         design at a few steps, which on a large bus is itself long work).
     """
     from .line_model import choose_dt
-    from .netlist import flatten, tolerance_envelope
+    from .netlist import flatten
     from .sweep import plan
 
     drivers = design.drivers
     if largest_step:
-        env = tolerance_envelope(design, {})
-        _, _, tss = plan(design, {}, EDGES, dt=1.0)        # the window alone (dt given: no estimate runs)
+        env, _, tss = plan(design, {}, EDGES, dt=1.0)      # envelope and window (dt given: no estimate runs)
         dts = {e: choose_dt(env, e) for e in EDGES}
     else:
         env, dts, tss = plan(design, {}, EDGES)

@@ -59,10 +59,9 @@ def test_cache_folder_is_named_after_the_kernel_sources():
 def _run(code: str, cwd: Path, cache: Path | None) -> dict:
     """Run ``code`` in a fresh interpreter on the package at ``cwd``, the kernel cache at ``cache``
     (None: the cache this test run uses); its last output line is JSON."""
-    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH",) + (("NUMBA_CACHE_DIR",) if cache else ())}
-    env.update(PYTHONPATH=str(cwd))
+    env = dict(os.environ, PYTHONPATH=str(cwd))
     if cache:
-        env.update(NUMBA_CACHE_DIR=str(cache))
+        env["NUMBA_CACHE_DIR"] = str(cache)
     proc = subprocess.run([sys.executable, "-c", code], cwd=cwd, env=env, capture_output=True, text=True,
                           timeout=1800)
     assert proc.returncode == 0, proc.stderr
