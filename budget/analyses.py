@@ -36,7 +36,6 @@ References
 """
 from __future__ import annotations
 
-import itertools
 import math
 
 import numpy as np
@@ -113,22 +112,25 @@ def default_corners(design: Design, *, max_corners: int = MAX_CORNERS) -> dict:
             "run": bool(k) and n <= max_corners and sims <= DEFAULT_MAX_SIMULATIONS}
 
 
-def corner_values(design: Design, *, max_corners: int = MAX_CORNERS):
+def corner_values(design: Design, *, max_corners: int = MAX_CORNERS, count_only: bool = False):
     """Values of every corner of the tolerance box: ({path: array(2**k)}, paths, codes[2**k, k]).
 
-    codes[i, j] is 0 where value j is at its minimum and 1 at its maximum.
-    Raises ArgumentError when 2**k exceeds ``max_corners``.
+    codes[i, j] is 0 where value j is at its minimum and 1 at its maximum (corner i's
+    bits, value 0 the most significant).  Raises ArgumentError when 2**k exceeds
+    ``max_corners``; ``count_only``: only that check, returning the corner count.
     """
     paths = varied_paths(design)
     k = len(paths)
     if k == 0:
-        return {}, paths, np.zeros((0, 0), dtype=np.int64)
+        return 0 if count_only else ({}, paths, np.zeros((0, 0), dtype=np.int64))
     if k > 62 or 2 ** k > max_corners:
         raise ArgumentError(
             f"{design.source}: [tolerances] has {k} toleranced values, i.e. 2**{k} = {2 ** k:,} corners, "
             f"more than the limit of {max_corners:,}; use a Monte Carlo analysis (--monte-carlo N) or the "
             "worst-case search (--search) instead, or raise the limit (--max-corners)")
-    codes = np.array(list(itertools.product((0, 1), repeat=k)), dtype=np.int64)
+    if count_only:
+        return 2 ** k
+    codes = (np.arange(2 ** k, dtype=np.int64)[:, None] >> np.arange(k - 1, -1, -1, dtype=np.int64)) & 1
     vals = {p: np.where(codes[:, j] == 0, design.tolerances[p][0], design.tolerances[p][1])
             for j, p in enumerate(paths)}
     return vals, paths, codes

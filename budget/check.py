@@ -44,7 +44,7 @@ from .analyses import (DEFAULT_MAX_SIMULATIONS, DISTRIBUTIONS, MAX_CORNERS, Wors
                        default_corners, out_of_box, sample_values, varied_paths, wilson_interval)
 from .analyses import search as search_box
 from .errors import ArgumentError, DesignError
-from .limits import MAX_MONTE_CARLO, MAX_WORK, STEP_ESTIMATE_WORK
+from .limits import MAX_CORNERS_RAISED, MAX_MONTE_CARLO, MAX_WORK, STEP_ESTIMATE_WORK
 from .kernels import metrics as mk
 from .model import Design
 from .report import ASSUMPTIONS, RESULT_KEYS, SCHEMA, CheckReport, assumptions_for, result_row, worst_summary
@@ -106,8 +106,12 @@ def _refuse_long(design: Design, total: int, n_corners: int, monte_carlo: int, s
     fits = int(max_work // (work.node_steps / total))    # variants (nominal included) within the limit
     bound = "" if exact else " (an upper bound: the step chosen for accuracy may be finer)"
     ways = []
-    if fits >= 1:
+    if fits >= 1 and exact:
         ways.append("--nominal (the nominal design alone)")
+    elif fits >= 1:
+        # a lower bound: the nominal alone is below the limit at the largest step, maybe not at the chosen one
+        ways.append("--nominal (the nominal design alone; its work is then estimated at the step chosen "
+                    "for accuracy and may still be above the limit)")
     else:
         ways.append("a shorter window or a longer step ([bus] t_stop, dt): even the nominal design is above it")
     if n_corners and fits >= 2:
@@ -221,8 +225,12 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
         raise ArgumentError(f"seed must be a non-negative integer or None, got {seed!r}")
     if distribution not in DISTRIBUTIONS:
         raise ArgumentError(f"distribution must be one of {', '.join(DISTRIBUTIONS)}, got {distribution!r}")
-    if not isinstance(max_corners, (int, np.integer)) or max_corners < 1:
+    if isinstance(max_corners, bool) or not isinstance(max_corners, (int, np.integer)) or max_corners < 1:
         raise ArgumentError(f"max_corners must be a positive integer, got {max_corners!r}")
+    if max_corners > MAX_CORNERS_RAISED:
+        raise ArgumentError(f"max_corners (--max-corners) is {max_corners:,}; at most {MAX_CORNERS_RAISED:,} "
+                            "corners (budget.limits.MAX_CORNERS_RAISED, 20 toleranced values): beyond that "
+                            "use --monte-carlo N or --search")
     if not isinstance(search_generations, (int, np.integer)) or search_generations < 1:
         raise ArgumentError(f"search_generations must be a positive integer, got {search_generations!r}")
     if max_work is not None and (isinstance(max_work, bool) or not isinstance(max_work, (int, float, np.integer,
@@ -253,13 +261,15 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
     run_corners = bool(corners) or (corners is None and not nominal and plan["run"]) or (search and fits)
     corner_vals = codes = None
     if run_corners:
-        corner_vals, _, codes = corner_values(design, max_corners=max_corners)
-    n_corners = 0 if corner_vals is None else codes.shape[0]
+        corner_values(design, max_corners=max_corners, count_only=True)    # refuses too many corners
+    n_corners = 2 ** len(paths) if run_corners else 0
     k = len(paths)
     pop = max(8, 4 * k)
     total = 1 + n_corners + monte_carlo + (pop * (search_generations + 1) if search else 0)
     if max_work is not None:
         _refuse_long(design, total, n_corners, monte_carlo, search, max_work)
+    if run_corners:     # the corner table only once the work is known to be allowed
+        corner_vals, _, codes = corner_values(design, max_corners=max_corners)
     ev = _Evaluator(design, progress, total)
     shape = (len(drivers), 2, len(receivers))
     trackers = []

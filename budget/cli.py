@@ -585,6 +585,10 @@ def _cmd_bounce(args) -> int:
         step = parse_quantity(args.step, "voltage", source="command line", key="--step") if step is None else step
     except DesignError as exc:
         raise InputError(f"bounce: --step: {exc.reason}") from None
+    from .limits import MAX_BOUNCES
+    if args.n > MAX_BOUNCES:
+        raise InputError(f"bounce: -n {args.n:,} arrivals is above the limit of {MAX_BOUNCES:,} "
+                         "(budget.limits.MAX_BOUNCES)")
     table = bounce_table(ohms(args.rs, "RS", open_ok=True), ohms(args.z0, "Z0", open_ok=False),
                          ohms(args.rl, "RL", open_ok=True), step, args.n)
     if args.json:
@@ -845,7 +849,7 @@ def build_parser() -> argparse.ArgumentParser:
     bo.add_argument("z0", help="line impedance")
     bo.add_argument("rl", help="load resistance (or 'open')")
     bo.add_argument("--step", default="1 V", help="source EMF step (default 1 V)")
-    bo.add_argument("-n", type=_positive, default=6, help="arrivals at the load (default 6)")
+    bo.add_argument("-n", type=_positive, default=6, help="arrivals at the load (default 6, at most 10,000)")
     bo.add_argument("--json", action="store_true", help="one JSON object (schema busbudget.bounce/1)")
     bo.set_defaults(func=_cmd_bounce)
 

@@ -27,6 +27,7 @@ from fractions import Fraction
 from numbers import Rational
 
 from .errors import ArgumentError
+from .limits import MAX_BOUNCES
 
 # J&G's lumped rule (docs/references.md C5(a), from memory): a section is electrically short if its delay
 # is under 1/6 of the rise time.  Used only to flag estimates that may not hold.
@@ -405,6 +406,9 @@ def bounce_table(rs, z0, rl, v_step=1, n: int = 6, *, exact: bool = False, v_ini
     """
     if not isinstance(n, int) or isinstance(n, bool) or n < 1:
         raise ArgumentError(f"bounce_table: n must be a whole number >= 1, got {n!r}")
+    if n > MAX_BOUNCES:
+        raise ArgumentError(f"bounce_table: n = {n:,} arrivals is above the limit of {MAX_BOUNCES:,} "
+                            "(budget.limits.MAX_BOUNCES)")
 
     def check(value, name, *, open_ok, zero_ok):
         if value is None or (isinstance(value, float) and math.isinf(value) and value > 0):

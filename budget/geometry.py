@@ -65,13 +65,21 @@ from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
-from scipy.constants import c as C_LIGHT  # speed of light in vacuum [m/s] (exact, SI)
-from scipy.constants import epsilon_0, mu_0
-from scipy.special import ellipkm1
 
 from .errors import ArgumentError, DesignError, GeometryRangeWarning
 
+# Physical constants, written out so that importing the package does not import scipy (about
+# 0.15 s of every process's start-up); tests/test_geometry.py compares them with scipy.constants.
+C_LIGHT = 299792458.0           # speed of light in vacuum [m/s] (exact, SI 2019)
+mu_0 = 1.25663706127e-06        # vacuum magnetic permeability [N/A^2] (CODATA 2022, from memory; as scipy.constants)
+epsilon_0 = 8.8541878188e-12    # vacuum electric permittivity [F/m] (CODATA 2022, from memory; as scipy.constants)
 ETA0 = math.sqrt(mu_0 / epsilon_0)  # impedance of free space [ohm], 376.730...
+
+
+def ellipkm1(p):
+    """scipy.special.ellipkm1 (K(m = 1 - p)), imported on first use: scipy.special costs start-up time."""
+    from scipy.special import ellipkm1 as k
+    return k(p)
 
 #: kind -> its keys, in the order the contract lists them
 KINDS: Mapping[str, tuple[str, ...]] = {

@@ -39,6 +39,14 @@ MAX_BATCH_VARIANTS = 10_000_000
     Variants of one ``bb_batch`` call from C (n_variants x n_paths doubles read from the
     caller's buffer): a count beyond it is a caller's bug, refused with BB_ERR_SIZE
     before the buffer is touched.
+MAX_CORNERS_RAISED = 1_048_576
+    Tolerance corners of one analysis however far ``--max-corners`` (``max_corners=``)
+    raises the default of 4,096: 2**20, i.e. 20 toleranced values.  The corner table is
+    built before the work bound is estimated; 2**40 corners would take terabytes.
+    Beyond 20 values use the Monte Carlo analysis or the worst-case search.
+MAX_BOUNCES = 10_000
+    Arrivals at the load of one ``bounce`` table (``bounce_table(n=)``, ``bounce -n``):
+    a lattice table is read by a person; tens of rows show any settling there is.
 MAX_NAME_CHARS = 256
     Characters of a name or other text value of a design (bus name, tap, node, part and
     line names); names appear in every report line and CSV header.
@@ -57,6 +65,8 @@ MAX_MONTE_CARLO = 1_000_000
 MAX_WORK = 100_000_000_000
 STEP_ESTIMATE_WORK = 1_000_000_000
 MAX_BATCH_VARIANTS = 10_000_000
+MAX_CORNERS_RAISED = 1_048_576
+MAX_BOUNCES = 10_000
 MAX_NAME_CHARS = 256
 MAX_NAMES_LISTED = 12
 

@@ -122,6 +122,12 @@ CLI_ROWS = {
     "ibis-corner-between": (_replace("[parts.dst]", f'[parts.ib]\nibis = {{ file = "{SHIPPED_IBIS}", '
                                      'model = "tsx33_io" }\n\n[parts.dst]'),
                             ["check", "--set", "parts.ib.ibis.corner=0.5"], ["parts.ib.ibis.corner", "IBIS corner"]),
+    # found by benchmarks/fuzz.py (2026-12-03): 1e11 arrivals grew memory without bound
+    "bounce-too-many-arrivals": (None, ["bounce", "1e308", "50", "25 ohm", "-n", "100000000000", "--step", "0"],
+                                 ["-n", "MAX_BOUNCES"]),
+    # 2**40 corners would be built before the work bound: the raised corner limit has a ceiling
+    "max-corners-beyond-the-ceiling": (ROBUST, ["check", "--corners", "--max-corners", "1099511627776"],
+                                       ["--max-corners", "MAX_CORNERS_RAISED"]),
     # 5.6e11 node-steps: tens of minutes if it ran; refused up front (tests/test_work_bound.py shows no simulation starts)
     "transceivers-corners-too-much-work": (_many_transceivers(512), ["check", "--corners"],
                                            ["node-steps", "MAX_WORK", "--nominal", "--allow-long"]),

@@ -435,6 +435,14 @@ def test_lattice_blood_example_2_driver_cuts_off():
     assert t.v_final == pytest.approx(0.0, abs=1e-12)                     # driver off: RL pulls to 0 V
 
 
+def test_bounce_table_arrivals_are_bounded():
+    """n is refused above budget.limits.MAX_BOUNCES at once (1e11 arrivals grew memory without bound)."""
+    from budget import limits
+    assert len(bounce_table(25.0, 50.0, 75.0, 1.0, limits.MAX_BOUNCES).rows) == 2 * limits.MAX_BOUNCES + 1
+    with pytest.raises(ArgumentError, match="MAX_BOUNCES"):
+        bounce_table(25.0, 50.0, 75.0, 1.0, 10 ** 11)
+
+
 def test_bounce_table_text():
     text = bounce_table(25, 50, None, 1, 2, exact=True).text()
     assert "gamma_source = -1/3, gamma_load = +1" in text and "final = +1 V" in text

@@ -31,6 +31,15 @@ ETA0 = 376.730313   # docs/references.md preamble: sqrt(mu0/eps0) [ohm]
 # ---------------------------------------------------------------------------
 # coax and two-wire: exact TEM forms (docs/references.md B3, B4)
 
+def test_physical_constants_are_scipys():
+    """The constants geometry writes out (to keep scipy out of the start-up) are scipy.constants' own."""
+    import scipy.constants as sc
+    assert geometry.C_LIGHT == sc.c
+    assert math.isclose(geometry.mu_0, sc.mu_0, rel_tol=1e-9)
+    assert math.isclose(geometry.epsilon_0, sc.epsilon_0, rel_tol=1e-9)
+    assert math.isclose(geometry.ETA0, 376.730313412, rel_tol=1e-9)   # CODATA 2022, from memory
+
+
 def test_coax_reference_value():
     # docs/references.md B3 (Pozar 2012 section 2.2, Table 2.1, from memory; number derived):
     # D = 2.95 mm, d = 0.81 mm, er = 2.25 -> 51.6653 ohm (exact eta0)
