@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import collections
+import signal
 import sys
 import tempfile
 import time
@@ -45,24 +46,58 @@ def _strategy_and_runner(surface):
     raise SystemExit(f"unknown surface {surface!r}")
 
 
-def fuzz(surface: str, seconds: float, count: int | None, round_size: int = 50):
-    """Run one surface until ``seconds`` pass or ``count`` cases ran; (cases, outcomes, defects, elapsed)."""
+class _CaseTooLong(KeyboardInterrupt):
+    """Raised by the alarm; the command line may catch it (as an interrupt), so the flag decides."""
+
+
+_FIRED = [False]
+
+
+def _alarm(signum, frame):
+    _FIRED[0] = True
+    raise _CaseTooLong()
+
+
+def fuzz(surface: str, seconds: float, count: int | None, round_size: int = 50, case_seconds: float = 60.0):
+    """Run one surface until ``seconds`` pass or ``count`` cases ran; (cases, outcomes, defects, elapsed).
+
+    A case still running after ``case_seconds`` is stopped (SIGALRM, taken when control is back in
+    Python) and counted as a defect "hang": every input must be refused or finished in bounded time."""
     strategy, runner = _strategy_and_runner(surface)
     outcomes = collections.Counter()
     defects = {}
     n = [0]
     t0 = time.monotonic()
+    signal.signal(signal.SIGALRM, _alarm)
 
     def one(case):
         if time.monotonic() - t0 > seconds or (count is not None and n[0] >= count):
             return
         n[0] += 1
+        _FIRED[0] = False
         try:
-            res = runner(case)
-        except fz.Defect as d:
+            signal.setitimer(signal.ITIMER_REAL, case_seconds)
+            try:
+                res = runner(case)
+            finally:
+                signal.setitimer(signal.ITIMER_REAL, 0)
+        except (_CaseTooLong, fz.Defect) as exc:
+            if _FIRED[0]:
+                d = fz.Defect("hang", f"still running after {case_seconds:g} s")
+                outcomes["DEFECT hang"] += 1
+                defects.setdefault(("hang", repr(case)[:120]), (d, case))
+                return
+            if not isinstance(exc, fz.Defect):
+                raise
+            d = exc
             outcomes[f"DEFECT {d.kind}"] += 1
             key = (d.kind, d.detail[:120])
             defects.setdefault(key, (d, case))
+            return
+        if _FIRED[0]:       # the interrupt was caught and the command returned: still a hang
+            outcomes["DEFECT hang"] += 1
+            defects.setdefault(("hang", repr(case)[:120]),
+                               (fz.Defect("hang", f"still running after {case_seconds:g} s"), case))
             return
         for kind in (res if isinstance(res, list) else [res]):
             outcomes[kind] += 1
@@ -124,6 +159,8 @@ def main(argv=None) -> int:
     ap.add_argument("--count", type=int, default=None, help="at most this many cases per surface")
     ap.add_argument("--surfaces", nargs="+", default=list(SURFACES), choices=(*SURFACES, "clib"))
     ap.add_argument("--c-library", action="store_true", help="also fuzz the compiled C library (surface clib)")
+    ap.add_argument("--case-seconds", type=float, default=60.0,
+                    help="a case running longer is stopped and reported as a hang (default 60)")
     args = ap.parse_args(argv)
     surfaces = list(args.surfaces) + (["clib"] if args.c_library and "clib" not in args.surfaces else [])
     found = 0
@@ -132,7 +169,7 @@ def main(argv=None) -> int:
             load_clib(Path(tmp))
         print("busbudget fuzz run (machine shared; counts depend on its load)")
         for surface in surfaces:
-            n, outcomes, defects, elapsed = fuzz(surface, args.seconds, args.count)
+            n, outcomes, defects, elapsed = fuzz(surface, args.seconds, args.count, case_seconds=args.case_seconds)
             print(f"\n== {surface}: {n} cases in {elapsed:.0f} s ({n / max(elapsed, 1e-9):.1f} per second)")
             for kind, k in outcomes.most_common():
                 print(f"  {k:7d}  {kind}")
