@@ -19,8 +19,8 @@ Measures, on the short-bus example (one driver, three receivers, both edges):
    median time per call (each call also simulates the design for its levels
    and window, as the CLI judge does).
 
-Both paths run numba's workqueue threading layer, the library's default
-(set NUMBA_THREADING_LAYER to compare another one on both).
+Both paths spread a batch's blocks over the same host threads
+(budget.kernels.threads); numba's threading layer is not used.
 
 The C driver is cexport/bench/calls.c.  Both sides run the same workload and
 the script checks that their results are identical.  Absolute times depend on
@@ -156,19 +156,14 @@ def main(argv=None) -> int:
 
     import numba
 
-    # The library runs numba's workqueue threading layer unless NUMBA_THREADING_LAYER
-    # is set (budget/capi.py says why); run this process's Python path on the same
-    # layer, so that the ratios measure the C boundary and not the layer.
-    if not os.environ.get("NUMBA_THREADING_LAYER"):
-        numba.config.THREADING_LAYER = "workqueue"
-
     import budget
+    from budget.kernels.threads import threads
     design_path = budget.example_path("short-bus")
     design = budget.load(design_path)
     print(f"busbudget {budget.__version__}, Python {platform.python_version()}, numba {numba.__version__}, "
           f"{os.cpu_count()} CPUs, {platform.machine()}")
     print(f"design: {design.bus.name} ({len(design.drivers)} driver, {len(design.receivers)} receivers, "
-          f"both edges); numba threading layer {numba.config.THREADING_LAYER} on both paths")
+          f"both edges); {threads()} host threads for the blocks on both paths")
 
     with tempfile.TemporaryDirectory(prefix="bb-c-overhead-") as tmp:
         exe = build(args.lib, Path(tmp))

@@ -3,7 +3,7 @@
     python benchmarks/inspect_loop.py           # table
     python benchmarks/inspect_loop.py --json    # one JSON object
 
-Compiles (or loads) the sweep kernel ``evaluate_chunk`` and the waveform
+Compiles (or loads) the sweep kernel ``evaluate_blocks`` and the waveform
 kernel ``run_block`` for the 8-drop reference bus and counts, in numba's
 assembly (``inspect_asm``): packed double-precision arithmetic (``*pd``
 with ymm/xmm registers: vectorised over variant lanes), scalar double
@@ -53,7 +53,7 @@ def kernels_asm() -> dict:
     sweep(d, drivers=["U1"], edges=("rise",), keep="margin")
     run_netlist(flatten(d, "U1", "rise"))
     out = {}
-    for name, fn in (("evaluate_chunk", ev.evaluate_chunk), ("run_block", tk.run_block)):
+    for name, fn in (("evaluate_blocks", ev.evaluate_blocks), ("run_block", tk.run_block)):
         asm = "\n".join(fn.inspect_asm(sig) for sig in fn.signatures)
         out[name] = asm
     return out

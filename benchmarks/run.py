@@ -89,17 +89,16 @@ def best_rate(fn, n_sims: int, repeat: int) -> float:
 
 
 def measure_throughput(design, n: int, threads: int, repeat: int) -> float:
-    import numba
-
+    from budget.kernels.threads import set_threads
     from budget.sweep import sweep
 
     values = random_values(design, n)
-    numba.set_num_threads(threads)
+    set_threads(threads)
     try:
         sweep(design, {k: v[:8] for k, v in values.items()}, drivers=["U1"], edges=("rise",), keep="margin")
         return best_rate(lambda: sweep(design, values, drivers=["U1"], edges=("rise",), keep="margin"), n, repeat)
     finally:
-        numba.set_num_threads(numba.config.NUMBA_NUM_THREADS)
+        set_threads(None)
 
 
 def child(code: str, env: dict | None = None) -> dict:

@@ -25,14 +25,12 @@ Concurrency (C callers may call from many threads at once):
   design either before or after a change, never half of it;
 - the last error message is kept per calling thread (``threading.local``; cffi
   keeps one Python thread state per C thread for the life of that thread);
-- numerical work runs one call at a time (``_compute_lock``): numba's workqueue
-  threading layer must not be entered from two threads at once, and each call
-  already spreads its work over every core.  Because launches are serialised,
-  :func:`bind` selects the workqueue layer for the embedded runtime (unless
-  ``NUMBA_THREADING_LAYER`` says otherwise): with the OpenMP layer, its worker
-  threads spinning between calls made a single check from C several times
-  slower than the same check in a Python process (measured with
-  benchmarks/c_overhead.py), and a rig then needs no OpenMP runtime.
+- numerical work runs one call at a time (``_compute_lock``): each call already
+  spreads its blocks of variants over every core on host threads
+  (:mod:`budget.kernels.threads`, started per call and gone when it returns), so
+  concurrent calls would only compete for the same cores.  numba's threading
+  layer is never started: a rig needs no OpenMP or TBB runtime and keeps no
+  worker threads between calls.
 """
 from __future__ import annotations
 
@@ -510,15 +508,12 @@ def runtime_info() -> str:
     import numba
 
     from . import __version__
-    try:
-        layer = numba.threading_layer()
-    except ValueError:          # no parallel kernel has run yet
-        layer = f"{numba.config.THREADING_LAYER} (not started yet)"
+    from .kernels.threads import threads
     lines = [
         f"busbudget {__version__} from {os.path.dirname(os.path.abspath(__file__))}",
         f"python {sys.version.split()[0]}: executable {sys.executable}",
         f"prefix {sys.prefix} (base {sys.base_prefix})",
-        f"numba {numba.__version__}, threading layer {layer}",
+        f"numba {numba.__version__}; {threads()} host threads for a batch's blocks (NUMBA_NUM_THREADS)",
     ]
     env = os.environ.get("NUMBA_CACHE_DIR")
     dirs = kernel_cache_dirs()
@@ -590,9 +585,6 @@ def bind(ffi, lib) -> None:
         if getattr(lib, name) != bit:
             raise RuntimeError(f"busbudget.h: {name} = {getattr(lib, name)} but the kernels use {bit}")
     NULL = ffi.NULL
-    if not os.environ.get("NUMBA_THREADING_LAYER"):   # see the module docstring
-        import numba
-        numba.config.THREADING_LAYER = "workqueue"
 
     def export(fn):
         def call(*args):

@@ -149,6 +149,3 @@ def kernel(fn=None, **extra):
     return _jit(fn, opts)
 
 
-def parallel_kernel(fn):
-    """Like :func:`kernel` but with ``parallel=True`` for loops written with ``prange``."""
-    return _jit(fn, dict(KERNEL_OPTIONS, parallel=True))

@@ -175,9 +175,9 @@ class WarmReport:
 
 
 # Steps a second process compiles meanwhile when jobs > 1: numba compiles under the GIL, so
-# the one-lane simulation and the production-line kernels (independent of the batched
-# evaluation that the check compiles) go to a helper process.
-HELPER_STEPS = ("waveforms of one edge", "judge a capture", "TDR profile", "metric functions")
+# the non-linear (IBIS) kernels and the production-line kernels, independent of the linear
+# transient and the batched evaluation that the first check compiles, go to a helper process.
+HELPER_STEPS = ("check of IBIS buffers", "judge a capture", "TDR profile", "metric functions")
 
 
 def compiled_count(disp: dict) -> int:

@@ -28,7 +28,6 @@ import contextlib
 import io
 import json
 import math
-import os
 import sys
 import tempfile
 import tomllib
@@ -572,13 +571,7 @@ def bind_exports():
         ffi.cdef(api_declarations(HEADER.read_text()))
         lib = ffi.dlopen(None)      # only the header's constants are used
         rec = _Recorder(ffi)
-        old = os.environ.get("NUMBA_THREADING_LAYER")
-        os.environ["NUMBA_THREADING_LAYER"] = old or "default"   # bind must not switch this process's layer
-        try:
-            capi.bind(rec, lib)
-        finally:
-            if old is None:
-                del os.environ["NUMBA_THREADING_LAYER"]
+        capi.bind(rec, lib)
         codes = {getattr(lib, n): n for n in capi.STATUS_NAMES}
         _BOUND.update(ffi=ffi, lib=lib, exports=rec.exports, codes=codes)
     return _BOUND["ffi"], _BOUND["lib"], _BOUND["exports"]

@@ -3,7 +3,7 @@
 This is the throughput path used by sweeps, tolerance analyses, the budget
 check and the C library.  Variants are processed in blocks of ``LANES`` (the
 variant axis innermost, so the compiler can vectorise across it) and blocks
-run in parallel across cores (``prange``).
+run in parallel across cores (host threads, :mod:`budget.kernels.threads`).
 
 The metrics are computed inside the time loop, sample by sample
 (:mod:`budget.kernels.stream`): no waveform is stored.  A block may end its
@@ -19,11 +19,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import prange
 
-from ..jit import kernel, parallel_kernel
+from ..jit import kernel
 from .metrics import N_METRICS, edge_metrics, headroom, violation_bits
 from .stream import N_PARAMS, N_STATE, P_MIRC, P_VHI, P_VLO, stream_finish, stream_params, stream_start
+from .threads import block_count, over_blocks
 from .transient import LANES, _block_setup, _finite_status, _time_loop, run_block
 
 
@@ -70,8 +70,9 @@ def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, r
                 stream_start(mp, ms, s, bb, v0)
     no_wave = np.empty((0, 0, B))
     early = guard < math.inf
+    record = no_wave.shape[0] == vals.n_steps    # False, as a run-time flag: run_block's compiled _time_loop
     n_done = _time_loop(b0, bsz, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap,
-                        j_cap, g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, no_wave, False,
+                        j_cap, g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, no_wave, record,
                         (st_node, mp, ms, guard, early))
     _finite_status(b0, bsz, lanes, topo, v, status)
     m = np.empty(N_METRICS)
@@ -90,7 +91,38 @@ def _evaluate_block(b0, bsz, lanes, topo, vals, rising, n_e, rcv_out, rcv_vil, r
     return n_done
 
 
-@parallel_kernel
+@kernel
+def evaluate_blocks(blk0, blk1, topo, vals, rising,
+                    rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                    settle_frac, min_margin, t_ref,
+                    metrics_out, bits_out, head_out, levels_out, status, dc, guard):
+    """Blocks blk0 .. blk1-1 of LANES variants (one thread's share, see :func:`evaluate_chunk`).
+
+    n_e = t_ref.shape[0] edges (1: the simulated one; 2: it and its mirror); every output
+    has the leading edge axis; dc[2, n_nodes, N] [V] is scratch for the DC states.
+    Returns the number of time steps computed over these blocks."""
+    n = t_ref.shape[1]
+    steps = 0
+    for blk in range(blk0, blk1):
+        b0 = blk * LANES
+        bsz = min(LANES, n - b0)
+        steps += _evaluate_block(b0, bsz, (), topo, vals, rising, t_ref.shape[0], rcv_out, rcv_vil, rcv_vih,
+                                 rcv_vmax, rcv_vmin, alloc_v, alloc_frac, settle_frac, min_margin, t_ref,
+                                 metrics_out, bits_out, head_out, levels_out, status, dc, guard)
+    return steps
+
+
+def _evaluate(topo, vals, rising, rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+              settle_frac, min_margin, t_ref, metrics_out, bits_out, head_out, levels_out, status, guard):
+    # outputs with the leading edge axis: one compiled signature of evaluate_blocks serves both callers
+    n = t_ref.shape[1]
+    dc = np.empty((2, topo.n_nodes, n))
+    args = (topo, vals, bool(rising), rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+            float(settle_frac), float(min_margin), t_ref, metrics_out, bits_out, head_out, levels_out, status,
+            dc, float(guard))
+    return over_blocks(block_count(n, LANES), lambda a, b: evaluate_blocks(a, b, *args))
+
+
 def evaluate_chunk(topo, vals, rising,
                    rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
                    settle_frac, min_margin, t_ref,
@@ -107,28 +139,17 @@ def evaluate_chunk(topo, vals, rising,
     levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
     guard [s]: a block ends once every metric of every lane is final and its pins
     have stayed in their stop band this long (math.inf: the whole window).
+    Blocks run on numba's thread count of threads (:mod:`budget.kernels.threads`).
     Returns the number of time steps computed over all blocks.
     """
     n = t_ref.shape[0]
     n_rcv = rcv_out.shape[0]
-    dc = np.empty((2, topo.n_nodes, n))
-    n_blk = (n + LANES - 1) // LANES
-    t_ref2 = t_ref.reshape((1, n))
-    m4 = metrics_out.reshape((1, n, n_rcv, N_METRICS))
-    b3 = bits_out.reshape((1, n, n_rcv))
-    h3 = head_out.reshape((1, n, n_rcv))
-    l4 = levels_out.reshape((1, n, n_rcv, 2))
-    steps = 0
-    for blk in prange(n_blk):
-        b0 = blk * LANES
-        bsz = min(LANES, n - b0)
-        steps += _evaluate_block(b0, bsz, (), topo, vals, rising, t_ref2.shape[0], rcv_out, rcv_vil, rcv_vih, rcv_vmax,
-                                 rcv_vmin, alloc_v, alloc_frac, settle_frac, min_margin, t_ref2, m4, b3, h3, l4,
-                                 status, dc, guard)
-    return steps
+    return _evaluate(topo, vals, rising, rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                     settle_frac, min_margin, t_ref.reshape((1, n)),
+                     metrics_out.reshape((1, n, n_rcv, N_METRICS)), bits_out.reshape((1, n, n_rcv)),
+                     head_out.reshape((1, n, n_rcv)), levels_out.reshape((1, n, n_rcv, 2)), status, guard)
 
 
-@parallel_kernel
 def evaluate_chunk_both(topo, vals, rising,
                         rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
                         settle_frac, min_margin, t_ref,
@@ -142,47 +163,24 @@ def evaluate_chunk_both(topo, vals, rising,
     for the simulated edge (``rising``), row 1 for the other; outputs gain a
     leading edge axis of 2 (metrics_out[2, N, n_rcv, N_METRICS], ...).
     """
-    n = t_ref.shape[1]
-    dc = np.empty((2, topo.n_nodes, n))
-    n_blk = (n + LANES - 1) // LANES
-    steps = 0
-    for blk in prange(n_blk):
-        b0 = blk * LANES
-        bsz = min(LANES, n - b0)
-        steps += _evaluate_block(b0, bsz, (), topo, vals, rising, t_ref.shape[0], rcv_out, rcv_vil, rcv_vih, rcv_vmax,
-                                 rcv_vmin, alloc_v, alloc_frac, settle_frac, min_margin, t_ref, metrics_out,
-                                 bits_out, head_out, levels_out, status, dc, guard)
-    return steps
+    return _evaluate(topo, vals, rising, rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                     settle_frac, min_margin, t_ref, metrics_out, bits_out, head_out, levels_out, status, guard)
 
 
-@parallel_kernel
-def evaluate_chunk_reference(topo, vals, rising,
-                   rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
-                   settle_frac, min_margin, t_ref,
-                   metrics_out, bits_out, head_out, levels_out, status):
-    """The reference path of :func:`evaluate_chunk` (same arguments, no guard): waveforms stored per
-    block, transposed, then :func:`~budget.kernels.metrics.edge_metrics` on each.
-
-    topo, vals: :class:`~budget.kernels.inputs.Topology`, :class:`~budget.kernels.inputs.Values`
-    (``Netlist.topology``, ``Netlist.values``); rising: the edge is a rising one.
-    rcv_out[r]: index into out_node of receiver r; rcv_vil, rcv_vih, rcv_vmax,
-    rcv_vmin [V], alloc_v [V] and alloc_frac [-] (of the receiver's swing) are
-    ``[n_rcv, N]``; settle_frac [-]; min_margin [V]; t_ref [s] per variant.
-    Writes metrics_out[N, n_rcv, N_METRICS], bits_out[N, n_rcv] (VIOL_*),
-    head_out[N, n_rcv] (headroom [V], see budget.kernels.metrics.headroom),
-    levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
-    """
+@kernel
+def reference_blocks(blk0, blk1, topo, vals, rising,
+                     rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                     settle_frac, min_margin, t_ref,
+                     metrics_out, bits_out, head_out, levels_out, status, dc):
+    """Blocks blk0 .. blk1-1 of :func:`evaluate_chunk_reference` (waveforms stored, then the metrics)."""
     n = t_ref.shape[0]
     out_node = topo.out_node
-    n_nodes = topo.n_nodes
     n_steps = vals.n_steps
     dt = vals.dt
     n_out = out_node.shape[0]
     n_rcv = rcv_out.shape[0]
-    dc = np.empty((2, n_nodes, n))
     t = np.arange(n_steps) * dt
-    n_blk = (n + LANES - 1) // LANES
-    for blk in prange(n_blk):
+    for blk in range(blk0, blk1):
         b0 = blk * LANES
         bsz = min(LANES, n - b0)
         waves = np.empty((n_steps, n_out, bsz))
@@ -214,3 +212,17 @@ def evaluate_chunk_reference(topo, vals, rising,
                 levels_out[b, r, 0] = v_lo
                 levels_out[b, r, 1] = v_hi
     return 0
+
+
+def evaluate_chunk_reference(topo, vals, rising,
+                             rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                             settle_frac, min_margin, t_ref,
+                             metrics_out, bits_out, head_out, levels_out, status):
+    """The reference path of :func:`evaluate_chunk` (same arguments, no guard): waveforms stored per
+    block, transposed, then :func:`~budget.kernels.metrics.edge_metrics` on each (the outputs as
+    evaluate_chunk's, without the edge axis)."""
+    n = t_ref.shape[0]
+    dc = np.empty((2, topo.n_nodes, n))
+    args = (topo, vals, bool(rising), rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+            float(settle_frac), float(min_margin), t_ref, metrics_out, bits_out, head_out, levels_out, status, dc)
+    return over_blocks(block_count(n, LANES), lambda a, b: reference_blocks(a, b, *args))

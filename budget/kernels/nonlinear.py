@@ -40,10 +40,10 @@ import math
 from typing import NamedTuple
 
 import numpy as np
-from numba import prange
 
-from ..jit import kernel, parallel_kernel
+from ..jit import kernel
 from .metrics import N_METRICS, edge_metrics, headroom, violation_bits
+from .threads import block_count, over_blocks
 from .transient import (LANES, STATUS_CLUSTER_SINGULAR, STATUS_DC_SINGULAR, STATUS_NOT_FINITE, STATUS_OK,
                         _cluster_inverses, _lagrange_weights, _start_histories, dc_state)
 
@@ -621,23 +621,20 @@ def run_block_nl(b0, nb, lanes, topo, vals, devs, wave_out, dc_out, status):
     return 0
 
 
-@parallel_kernel
-def evaluate_chunk_nl(topo, vals, devs, rising,
-                      rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
-                      settle_frac, min_margin, t_ref,
-                      metrics_out, bits_out, head_out, levels_out, status):
-    """:func:`budget.kernels.evaluate.evaluate_chunk` for a bus with devices (same arguments, plus devs)."""
+@kernel
+def evaluate_blocks_nl(blk0, blk1, topo, vals, devs, rising,
+                       rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                       settle_frac, min_margin, t_ref,
+                       metrics_out, bits_out, head_out, levels_out, status, dc):
+    """Blocks blk0 .. blk1-1 of LANES variants of :func:`evaluate_chunk_nl` (one thread's share)."""
     n = t_ref.shape[0]
     out_node = topo.out_node
-    n_nodes = topo.n_nodes
     n_steps = vals.n_steps
     dt = vals.dt
     n_out = out_node.shape[0]
     n_rcv = rcv_out.shape[0]
-    dc = np.empty((2, n_nodes, n))
     t = np.arange(n_steps) * dt
-    n_blk = (n + LANES - 1) // LANES
-    for blk in prange(n_blk):
+    for blk in range(blk0, blk1):
         b0 = blk * LANES
         bsz = min(LANES, n - b0)
         waves = np.empty((n_steps, n_out, bsz))
@@ -668,6 +665,19 @@ def evaluate_chunk_nl(topo, vals, devs, rising,
                 levels_out[b, r, 0] = v_lo
                 levels_out[b, r, 1] = v_hi
     return 0
+
+
+def evaluate_chunk_nl(topo, vals, devs, rising,
+                      rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+                      settle_frac, min_margin, t_ref,
+                      metrics_out, bits_out, head_out, levels_out, status):
+    """:func:`budget.kernels.evaluate.evaluate_chunk` for a bus with devices (same arguments, plus devs;
+    no guard: the whole window).  Blocks run on host threads (:mod:`budget.kernels.threads`)."""
+    n = t_ref.shape[0]
+    dc = np.empty((2, topo.n_nodes, n))
+    args = (topo, vals, devs, bool(rising), rcv_out, rcv_vil, rcv_vih, rcv_vmax, rcv_vmin, alloc_v, alloc_frac,
+            float(settle_frac), float(min_margin), t_ref, metrics_out, bits_out, head_out, levels_out, status, dc)
+    return over_blocks(block_count(n, LANES), lambda a, b: evaluate_blocks_nl(a, b, *args))
 
 
 @kernel

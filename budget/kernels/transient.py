@@ -341,19 +341,22 @@ def _lagrange_weights(q, fr, B, qmin, ntap, tap_off):
 
 # ---- the time loop ----------------------------------------------------------------------
 
-@kernel(inline="always")
+@kernel
 def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap,
                g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record, streams):
     """The time loop of one block: steps 1 .. n_steps-1 of every lane (set-up done by run_block).
 
-    Inlined into run_block (numba IR inlining), so the block size is a
-    compile-time constant for single simulations and the loop sees run_block's
-    own allocations.  One loop nest, not one function per phase: with the
-    phases as separate inlined numba functions (each binding its array
-    arguments with a reference-count call per step) a single simulation of the
-    benchmark bus ran 2-10 % slower than the undivided kernel, this form 1-3 %
-    (both measured interleaved in one process; 32-lane blocks at parity); as
-    separate compiled functions a single simulation ran 1.7x slower.
+    A compiled function of its own, called once per block by run_block and by
+    the sweeps' block (budget.kernels.evaluate._evaluate_block) with the same
+    argument types, so it is compiled once.
+    Inlined into both callers (numba IR inlining) it cost about 16 s of compile
+    time per caller; as a called function, throughput measured interleaved in
+    one process was at parity (2-core machine, 2026-12-03).  One loop nest,
+    not one function per phase: with the phases as separate inlined numba
+    functions (each binding its array arguments with a reference-count call
+    per step) a single simulation of the benchmark bus ran 2-10 % slower than
+    the undivided kernel; as separate compiled functions called every step,
+    1.7x slower.
     Each step, in order:
 
     1. Delayed line histories (method of characteristics, F. H. Branin,
@@ -535,9 +538,10 @@ def _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wt
 
 # ---- the block driver -------------------------------------------------------------------
 
-@kernel(inline="always")
+@kernel
 def _block_setup(b0, nb, lanes, topo, vals, dc_out, status):
-    """Set-up of one block (inlined into its callers): DC states, histories, cluster inverses, weights.
+    """Set-up of one block (called once per block by run_block and the sweeps): DC states, histories,
+    cluster inverses, weights.
 
     Fills dc_out[0 or 1, node, b] [V] (start and end states) and status[b];
     returns the block state the time loop takes, with v holding the DC start state.
@@ -638,9 +642,11 @@ def run_block(b0, nb, lanes, topo, vals, wave_out, dc_out, status):
     :class:`~budget.kernels.inputs.Values` (``Netlist.topology``, ``Netlist.values``);
     values are ``[item, N]`` arrays over all N variants.
     The block size B is ``len(lanes)`` when ``lanes`` is a non-empty tuple (a
-    compile-time constant: pass ``(0,)`` for a single variant, so the compiler
-    drops the per-variant loops' vectorisation checks, 5x faster per step),
-    else the run-time ``nb`` (sweeps: LLVM vectorises the per-variant loops).
+    compile-time constant: ``(0,)`` for a single variant lets the compiler drop
+    the per-variant loops' vectorisation checks, about 2x faster per step, at
+    the price of a second compiled signature of every kernel below), else the
+    run-time ``nb`` (sweeps: LLVM vectorises the per-variant loops).  The
+    package passes ``()`` everywhere (budget.run_blocks).
 
     Writes pin waveforms wave_out[step, out, b - b0] [V] (block-local variant
     index) when wave_out has n_steps rows (else records nothing), the DC node
@@ -658,8 +664,10 @@ def run_block(b0, nb, lanes, topo, vals, wave_out, dc_out, status):
                 wave_out[0, o, bb] = v[out_node[o], bb]
     no_rcv = np.empty(0, dtype=np.int64)
     no_state = np.empty((0, 0, B))
+    # run-time flags, not literals: the same compiled _time_loop as the sweeps' (_evaluate_block) call
+    early = no_rcv.shape[0] > 0
     _time_loop(b0, nb, lanes, topo, vals, ring_off, pos, qmin, ntap, tap_off, wts, ring, gz, g_cap, j_cap,
                g_ind, j_ind, inv, rhs0, rhs, v, ha, hb, s0_d, m_d, off_d, wave_out, record,
-               (no_rcv, no_state, no_state, 0.0, False))
+               (no_rcv, no_state, no_state, math.inf, early))
     _finite_status(b0, nb, lanes, topo, v, status)
     return 0
