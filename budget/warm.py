@@ -10,6 +10,9 @@ profile, the metric functions of the Python API -- so that every kernel
 entry point is compiled for every argument type the package passes it, and
 reports what it compiled and what it found already cached.
 
+It also leaves pint's parsed unit definitions beside the kernels (``pint-definitions``,
+:mod:`budget.units`), which a fresh process then reads instead of parsing them again.
+
 The cache lives where :mod:`budget.jit` puts it (``NUMBA_CACHE_DIR`` when set),
 keyed on a digest of the kernel sources: run ``busbudget warm`` again after an
 upgrade; it compiles nothing when the kernel sources did not change.
