@@ -490,10 +490,13 @@ def run_block_nl(b0, nb, lanes, topo, vals, devs, wave_out, dc_out, status):
             va, ra, vb, rb = vals.drv_v1[b], vals.drv_r1[b], vals.drv_v0[b], vals.drv_r0[b]
         else:
             va, ra, vb, rb = 0.0, math.inf, 0.0, math.inf
-        st = dc_state_nl(b, True, va, ra, topo, vals, devs, vdc, li, ii, band, rhs_dc, acc, xd)
+        # the end state, then the start state; the flag a run-time bool, not a literal True / False
+        # (a literal would compile dc_state_nl, and what it calls, once for each value)
+        final = b >= 0
+        st = dc_state_nl(b, final, va, ra, topo, vals, devs, vdc, li, ii, band, rhs_dc, acc, xd)
         for n in range(n_nodes):
             dc_out[1, n, b] = vdc[n]
-        st2 = dc_state_nl(b, False, vb, rb, topo, vals, devs, vdc, li, ii, band, rhs_dc, acc, xd)
+        st2 = dc_state_nl(b, not final, vb, rb, topo, vals, devs, vdc, li, ii, band, rhs_dc, acc, xd)
         for n in range(n_nodes):
             v[n, bb] = vdc[n]
             dc_out[0, n, b] = vdc[n]
