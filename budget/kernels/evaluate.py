@@ -139,7 +139,7 @@ def evaluate_chunk(topo, vals, rising,
     levels_out[N, n_rcv, 2] (V_lo, V_hi at the pin [V]) and status[N].
     guard [s]: a block ends once every metric of every lane is final and its pins
     have stayed in their stop band this long (math.inf: the whole window).
-    Blocks run on numba's thread count of threads (:mod:`budget.kernels.threads`).
+    Blocks run on :func:`budget.kernels.threads.threads` host threads (NUMBA_NUM_THREADS, else the cores).
     Returns the number of time steps computed over all blocks.
     """
     n = t_ref.shape[0]
