@@ -70,6 +70,11 @@ def fuzz(surface: str, seconds: float, count: int | None, round_size: int = 50, 
     t0 = time.monotonic()
     signal.signal(signal.SIGALRM, _alarm)
 
+    def hang(case):
+        outcomes["DEFECT hang"] += 1
+        defects.setdefault(("hang", repr(case)[:120]),
+                           (fz.Defect("hang", f"still running after {case_seconds:g} s"), case))
+
     def one(case):
         if time.monotonic() - t0 > seconds or (count is not None and n[0] >= count):
             return
@@ -83,10 +88,7 @@ def fuzz(surface: str, seconds: float, count: int | None, round_size: int = 50, 
                 signal.setitimer(signal.ITIMER_REAL, 0)
         except (_CaseTooLong, fz.Defect) as exc:
             if _FIRED[0]:
-                d = fz.Defect("hang", f"still running after {case_seconds:g} s")
-                outcomes["DEFECT hang"] += 1
-                defects.setdefault(("hang", repr(case)[:120]), (d, case))
-                return
+                return hang(case)
             if not isinstance(exc, fz.Defect):
                 raise
             d = exc
@@ -95,10 +97,7 @@ def fuzz(surface: str, seconds: float, count: int | None, round_size: int = 50, 
             defects.setdefault(key, (d, case))
             return
         if _FIRED[0]:       # the interrupt was caught and the command returned: still a hang
-            outcomes["DEFECT hang"] += 1
-            defects.setdefault(("hang", repr(case)[:120]),
-                               (fz.Defect("hang", f"still running after {case_seconds:g} s"), case))
-            return
+            return hang(case)
         for kind in (res if isinstance(res, list) else [res]):
             outcomes[kind] += 1
 

@@ -260,15 +260,14 @@ def check(design: Design, *, corners: bool | None = None, nominal: bool = False,
     fits = len(paths) <= 62 and 2 ** len(paths) <= max_corners
     run_corners = bool(corners) or (corners is None and not nominal and plan["run"]) or (search and fits)
     corner_vals = codes = None
-    if run_corners:
-        corner_values(design, max_corners=max_corners, count_only=True)    # refuses too many corners
-    n_corners = 2 ** len(paths) if run_corners else 0
+    # the count first (refusing too many corners), the corner table only after the work bound
+    n_corners = corner_values(design, max_corners=max_corners, count_only=True) if run_corners else 0
     k = len(paths)
     pop = max(8, 4 * k)
     total = 1 + n_corners + monte_carlo + (pop * (search_generations + 1) if search else 0)
     if max_work is not None:
         _refuse_long(design, total, n_corners, monte_carlo, search, max_work)
-    if run_corners:     # the corner table only once the work is known to be allowed
+    if run_corners:
         corner_vals, _, codes = corner_values(design, max_corners=max_corners)
     ev = _Evaluator(design, progress, total)
     shape = (len(drivers), 2, len(receivers))

@@ -9,8 +9,8 @@ Why not numba's ``prange``: a parallel (parfor) kernel cost about 18 s of
 compile time per entry point on a 2-core machine (numba 0.68, its parfor
 lowering: 3 entry points, more than a fifth of a cold compile), and starts a
 threading layer in every fresh process; a plain kernel over a block range
-compiles in about a second and the per-call cost here is a few microseconds
-against milliseconds per block.
+compiled in about 4 s, and a thread makes one call per few blocks, each block
+taking milliseconds.
 
 The number of threads: ``NUMBA_NUM_THREADS`` when set, else the machine's cores
 (numba's own default), or what :func:`set_threads` says.  numba's threading layer is
