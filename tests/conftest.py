@@ -34,3 +34,32 @@ def pytest_terminal_summary(terminalreporter):
         terminalreporter.section("measured accuracy against outside references")
         for line in _ACCURACY_LINES:
             terminalreporter.write_line(line)
+
+
+# -- parallel runs: compile every kernel once, before the workers start ----------------
+def pytest_sessionstart(session):
+    """Under pytest-xdist, run ``busbudget warm`` once in the controller.
+
+    Without it each worker compiles the same kernels itself (numba's cache is per
+    process until written), paying the cold compile once per worker.  Serial runs
+    (``-n 0``) compile on first use as before.
+    """
+    config = session.config
+    if hasattr(config, "workerinput"):          # a worker: the controller has warmed
+        return
+    workers = getattr(config.option, "numprocesses", None)
+    if not workers or getattr(config.option, "collectonly", False):
+        return
+    import subprocess
+    import sys
+    import time
+    t0 = time.perf_counter()
+    done = subprocess.run([sys.executable, "-c", "import sys; from budget.cli import main; sys.exit(main(['warm', '--json']))"],
+                          capture_output=True, text=True)
+    reporter = config.pluginmanager.get_plugin("terminalreporter")
+    line = f"busbudget warm before the workers: exit {done.returncode} in {time.perf_counter() - t0:.1f} s"
+    if reporter is not None:
+        reporter.write_line(line)
+    if done.returncode != 0:   # the workers then compile what they need; test_warm reports the defect
+        if reporter is not None:
+            reporter.write_line(done.stderr[-2000:])
