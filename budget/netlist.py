@@ -34,7 +34,7 @@ import numpy as np
 from .edges import EDGES, FALL, RISE, ramp_time
 from .errors import ArgumentError, DesignError
 from .limits import MAX_BLOCK_VALUES, MAX_STEPS
-from .graph import union_roots
+from .graph import reverse_cuthill_mckee, union_roots
 from .kernels.inputs import Topology, Values
 from .line_model import (LOSS_SECTION_FRACTION, LUMPABLE_RAMP_FRACTION, STEPS_PER_LC_PERIOD,  # noqa: F401
                          STEPS_PER_RAMP, choose_dt, default_t_stop, envelope_range, line_delays,
@@ -420,9 +420,6 @@ def _trim_cache(limit: int = 256):
 
 
 def _rcm_map_uncached(n_groups, gid, res_a, res_b):
-    from scipy.sparse import coo_matrix
-    from scipy.sparse.csgraph import reverse_cuthill_mckee
-
     ra, rb = [], []
     for a, c in zip(res_a, res_b):
         if c >= 0 and gid[a] != gid[c]:
@@ -430,8 +427,7 @@ def _rcm_map_uncached(n_groups, gid, res_a, res_b):
             rb += [gid[c], gid[a]]
     ra += list(range(n_groups))
     rb += list(range(n_groups))
-    m = coo_matrix((np.ones(len(ra)), (ra, rb)), shape=(n_groups, n_groups)).tocsr()
-    perm = reverse_cuthill_mckee(m, symmetric_mode=True)
+    perm = np.asarray(reverse_cuthill_mckee(n_groups, zip(ra, rb)), dtype=np.int64)
     pos = np.empty(n_groups, dtype=np.int64)
     pos[perm] = np.arange(n_groups)
     bw = 0

@@ -124,6 +124,109 @@ def _registry():
     return pint.UnitRegistry()
 
 
+class _Factors:
+    """pint's SI factor and dimensionality of each canonical unit, kept on disk.
+
+    Importing pint costs about 0.5 s in a fresh process (2-core machine); a design uses a
+    handful of units.  pint converts a magnitude as ``magnitude * factor`` with the factor of
+    the whole unit (checked bit for bit in tests/test_units.py), so the factor pint gives for
+    one unit is all a later process needs.  Each factor comes from pint itself, the first time
+    a unit is met (or from ``busbudget warm``), and is kept in ``unit-factors-pint-<version>.json``
+    beside the kernel cache; a pint upgrade starts a new table.  Without a writable cache the
+    table lives in memory only."""
+
+    def __init__(self):
+        self._table: dict | None = None
+        self._path = None
+
+    def _load(self) -> dict:
+        if self._table is None:
+            import json
+            from importlib import metadata
+
+            from .jit import cache_root
+            table: dict = {"units": {}, "dimensions": {}}
+            root = cache_root()
+            if root is not None:
+                try:
+                    version = metadata.version("pint")
+                except metadata.PackageNotFoundError:
+                    version = "unknown"
+                self._path = root / f"unit-factors-pint-{version}.json"
+                try:
+                    loaded = json.loads(self._path.read_text())
+                    if isinstance(loaded.get("units"), dict) and isinstance(loaded.get("dimensions"), dict):
+                        table = loaded
+                except (OSError, ValueError, AttributeError):   # absent or damaged: rebuilt from pint
+                    pass
+            self._table = table
+        return self._table
+
+    def _save(self) -> None:
+        if self._path is None:
+            return
+        import json
+        import os
+        tmp = self._path.with_name(f"{self._path.name}.{os.getpid()}.tmp")
+        try:
+            tmp.write_text(json.dumps(self._table, sort_keys=True))
+            os.replace(tmp, self._path)   # atomic: a concurrent reader sees an old or a new table
+        except OSError:
+            try:
+                tmp.unlink()
+            except OSError:
+                pass
+
+    @staticmethod
+    def _from_pint(unit: str):
+        try:
+            q = _registry().Quantity(1.0, unit).to_base_units()
+            return [float(q.magnitude), str(q.dimensionality)]
+        except Exception:  # pint raises several unrelated types; the text was already checked
+            return None
+
+    def unit(self, unit: str):
+        """[SI factor, pint dimensionality] of a canonical unit, or None if pint cannot convert it."""
+        units = self._load()["units"]
+        if unit not in units:
+            units[unit] = self._from_pint(unit)
+            self._save()
+        return units[unit]
+
+    def dimension(self, name: str) -> str:
+        """pint dimensionality string of a :data:`DIMENSIONS` name."""
+        dims = self._load()["dimensions"]
+        if name not in dims:
+            ureg = _registry()
+            spec = DIMENSIONS[name][0]
+            dims[name] = str(ureg.Quantity(1).dimensionality if spec == "dimensionless"
+                             else ureg.get_dimensionality(spec))
+            self._save()
+        return dims[name]
+
+    def fill(self) -> int:
+        """Enter every unit a design can write (numerators over a length or a time, and alone)
+        and every dimension; return the number of units in the table.  Run by ``busbudget warm``."""
+        table = self._load()
+        singles = sorted(set(_PLAIN.values()) | set(_BASES)
+                         | {prefix + base for base in _BASES for prefix in _PREFIX_SYMBOL})
+        denominators = [u for u in singles if u.endswith(("meter", "second")) or u in ("thou", "inch", "foot")]
+        changed = False
+        for unit in singles + [f"{a} / {b}" for a in singles for b in denominators]:
+            if unit not in table["units"]:
+                table["units"][unit] = self._from_pint(unit)
+                changed = True
+        for name in DIMENSIONS:
+            if name not in table["dimensions"]:
+                self.dimension(name)
+        if changed:
+            self._save()
+        return len(table["units"])
+
+
+FACTORS = _Factors()
+
+
 @functools.lru_cache(maxsize=4096)
 def _parse_string(text: str) -> tuple[float, str, bool]:
     """(SI magnitude, pint dimensionality, has a unit) of quantity text; raises UnitTextError."""
@@ -142,21 +245,14 @@ def _parse_string(text: str) -> tuple[float, str, bool]:
     unit = _resolve(num_unit)[0]
     if den_unit is not None:
         unit = f"{unit} / {_resolve(den_unit)[0]}"
-    try:
-        q = _registry().Quantity(value, unit).to_base_units()
-        out = float(q.magnitude)
-    except Exception:  # pint raises several unrelated types; the text was already checked
-        raise UnitTextError(f"cannot convert the unit {unit!r}") from None
-    return out, str(q.dimensionality), True
+    entry = FACTORS.unit(unit)
+    if entry is None:
+        raise UnitTextError(f"cannot convert the unit {unit!r}")
+    return value * entry[0], entry[1], True
 
 
-@functools.lru_cache(maxsize=None)
 def _dimensionality(name: str) -> str:
-    ureg = _registry()
-    spec = DIMENSIONS[name][0]
-    if spec == "dimensionless":
-        return str(ureg.Quantity(1).dimensionality)
-    return str(ureg.get_dimensionality(spec))
+    return FACTORS.dimension(name)
 
 
 def parse_quantity(value, dimension: str, *, source="<design>", table=None, key=None) -> float:

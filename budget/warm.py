@@ -10,8 +10,9 @@ profile, the metric functions of the Python API -- so that every kernel
 entry point is compiled for every argument type the package passes it, and
 reports what it compiled and what it found already cached.
 
-It also leaves pint's parsed unit definitions beside the kernels (``pint-definitions``,
-:mod:`budget.units`), which a fresh process then reads instead of parsing them again.
+It also leaves beside the kernels pint's parsed unit definitions (``pint-definitions``) and the
+SI factor of every unit a design can write (``unit-factors-pint-<version>.json``,
+:mod:`budget.units`), so a fresh process neither parses the definitions nor imports pint.
 
 The cache lives where :mod:`budget.jit` puts it (``NUMBA_CACHE_DIR`` when set),
 keyed on a digest of the kernel sources: run ``busbudget warm`` again after an
@@ -125,6 +126,12 @@ def _tdr():
     tdr_profile(cap.t, cap[cap.names[0]], source_r=50.0, emf=0.25, er_eff=3.6, source=cap.source)
 
 
+def _unit_factors():
+    """Enter every unit a design can write into the unit-factor table (budget.units)."""
+    from .units import FACTORS
+    FACTORS.fill()
+
+
 def workload() -> list:
     """(label, callable) of every step of the warm-up: the Python calls behind ``check`` (with tolerance
     corners, of a bus whose edges mirror and of IBIS buffers), ``waves``, ``plot`` (a batch of
@@ -139,6 +146,7 @@ def workload() -> list:
         ("correlate a capture", _correlate),
         ("TDR profile", _tdr),
         ("metric functions", _metric_api),
+        ("unit factors", _unit_factors),
     ]
 
 

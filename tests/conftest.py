@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import os
 
+import pytest
 from hypothesis import settings
 
 from budget.strategies import JIT_PROFILE
@@ -27,6 +28,19 @@ _ACCURACY_LINES: list[str] = []
 def accuracy_record(line: str) -> None:
     """Record one measured-accuracy line; pytest prints them all at the end of the run."""
     _ACCURACY_LINES.append(line)
+
+
+def pytest_sessionfinish(session):
+    """In an xdist worker: hand the accuracy lines to the controller, which prints them."""
+    out = getattr(session.config, "workeroutput", None)
+    if out is not None:
+        out["busbudget_accuracy"] = list(_ACCURACY_LINES)
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_testnodedown(node, error):
+    """In the xdist controller: collect the accuracy lines of a finished worker."""
+    _ACCURACY_LINES.extend(getattr(node, "workeroutput", {}).get("busbudget_accuracy", []))
 
 
 def pytest_terminal_summary(terminalreporter):
